@@ -1,0 +1,47 @@
+"""pondsim: open raceway pond planning for microalgae.
+
+Data flow (one module per stage)::
+
+    scenario.py   scenario TOML -> Scenario (validated)
+    weather.py    weather files -> hourly forcing      climate.py  clear-sky site mode
+    light.py      PAR entering the culture             thermal.py  water temperature
+    kinetics.py   growth rates                         capacity.py carrying capacity K(t)
+    harvest.py    harvest rules                        engine.py   vectorised integration
+    simulate.py   wiring: simulate(scenario) -> xarray.Dataset
+    results.py    summary tables, netCDF/CSV           plots.py    figures
+    cli.py        the ``pondsim`` command
+
+Importing pondsim defines things and does nothing else.
+"""
+
+__version__ = "0.1.0"
+
+from .errors import InputError
+from .results import save
+from .scenario import Scenario, load_scenario
+from .simulate import simulate
+
+
+def read_weather(path, **options):
+    """Read an hourly weather file into the forcing table (pandas.DataFrame).
+
+    Columns and units are listed in :mod:`pondsim.glossary`; the file's metadata (site,
+    format, what was filled or moved) is in ``DataFrame.attrs``. Options: see
+    :func:`pondsim.weather.read_weather`.
+    """
+    from .weather import read_weather as _read
+
+    table, meta = _read(path, **options)
+    table.attrs.update(meta)
+    return table
+
+
+def water_temperature(forcing, pond, **options):
+    """Hourly pond water temperature and energy budget; see :mod:`pondsim.thermal`."""
+    from .thermal import water_temperature as _wt
+
+    return _wt(forcing, pond, **options)
+
+
+__all__ = ["InputError", "Scenario", "load_scenario", "read_weather", "save", "simulate",
+           "water_temperature", "__version__"]

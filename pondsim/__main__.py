@@ -1,0 +1,5 @@
+"""Allow ``python -m pondsim``."""
+
+from .cli import main
+
+raise SystemExit(main())

@@ -1,0 +1,182 @@
+"""The ``pondsim`` command line.
+
+User errors (bad scenario, weather file, observations) print one message naming the file,
+the field and what is allowed, and exit with status 2 — never a traceback.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import time
+from pathlib import Path
+
+from .errors import InputError
+
+EXIT_INPUT = 2
+
+
+def _parser() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(
+        prog="pondsim",
+        description="Open raceway pond planning: weather, light, water temperature, "
+                    "algal growth and harvest over a year, from one scenario file.",
+        epilog="Results are estimates, not guarantees. Defer to local codes, permits and "
+               "licensed engineers.")
+    sub = p.add_subparsers(dest="command", metavar="COMMAND")
+    sub.required = True
+
+    w = sub.add_parser("weather", help="monthly weather, PAR and pond water table",
+                       description="Print the monthly forcing table of a scenario or a "
+                       "weather file: GHI, PAR, air and water temperature, wind, humidity, "
+                       "evaporation and makeup water.")
+    w.add_argument("source", help="scenario .toml, or a weather file (EPW, TMY3, TMY2, "
+                   "PVGIS, CSV)")
+    w.add_argument("--plot", metavar="PATH", help="also save a figure (PNG)")
+    w.add_argument("--year", type=int, help="calendar year to place a typical year in")
+    for name, unit in (("latitude", "deg"), ("longitude", "deg"), ("elevation", "m"),
+                       ("utc-offset", "h")):
+        w.add_argument(f"--{name}", type=float, help=f"site {name} [{unit}] where the "
+                       "file lacks it")
+    w.add_argument("--depth", type=float, default=0.25,
+                   help="pond depth for the water balance of a bare weather file [m] "
+                        "(default 0.25)")
+
+    r = sub.add_parser("run", help="simulate a year and write results",
+                       description="Simulate the scenario's year for every policy; write "
+                       "results.nc, summary.csv and figures.")
+    r.add_argument("scenario", help="scenario .toml")
+    r.add_argument("--out", default=None, metavar="DIR",
+                   help="output folder (default: out/<scenario name>)")
+    r.add_argument("--members", type=int, help="stochastic members per policy")
+    r.add_argument("--seed", type=int, help="seed of the random streams")
+    r.add_argument("--no-plots", action="store_true", help="skip the figures")
+
+    k = sub.add_parser("keys", help="print the scenario file reference (Markdown)")
+    k.set_defaults()
+    return p
+
+
+def main(argv: list[str] | None = None) -> int:
+    args = _parser().parse_args(argv)
+    try:
+        return {"weather": cmd_weather, "run": cmd_run, "keys": cmd_keys}[args.command](args)
+    except InputError as err:
+        print(f"pondsim: error: {err}", file=sys.stderr)
+        return EXIT_INPUT
+    except KeyboardInterrupt:
+        print("pondsim: interrupted", file=sys.stderr)
+        return 130
+
+
+def cmd_keys(args) -> int:
+    from .scenario import schema_markdown
+
+    print(schema_markdown())
+    return 0
+
+
+def _forcing_for(args):
+    """(forcing, meta, pond, scenario-or-None) for `pondsim weather`."""
+    from .scenario import SCHEMA, Pond, load_scenario
+    from .simulate import load_forcing
+
+    source = Path(args.source)
+    if source.suffix.lower() == ".toml":
+        scenario = load_scenario(source)
+        forcing, meta = load_forcing(scenario)
+        return forcing, meta, scenario.pond, scenario
+    from .weather import read_weather
+
+    forcing, meta = read_weather(source, latitude=args.latitude, longitude=args.longitude,
+                                 elevation_m=args.elevation, utc_offset_h=args.utc_offset,
+                                 year=args.year)
+    key = SCHEMA["pond"]["depth_m"]
+    if not key.low <= args.depth <= key.high:
+        raise InputError(f"{args.depth:g} m is out of range; allowed [{key.low:g}, "
+                         f"{key.high:g}] m", field="--depth")
+    defaults = {n: k.default for n, k in SCHEMA["pond"].items()}
+    defaults["depth_m"] = args.depth
+    return forcing, meta, Pond(**defaults), None
+
+
+def cmd_weather(args) -> int:
+    from . import light, thermal
+    from .results import CAUTION, monthly_forcing_table
+
+    forcing, meta, pond, scenario = _forcing_for(args)
+    lt = scenario.light if scenario else None
+    par = light.par_at_surface(forcing, par_fraction=lt.par_fraction if lt else None,
+                               photons_per_joule=lt.photons_per_joule_umol if lt else None)
+    upper = scenario.strain.t_max_c if scenario else None
+    wind_h = scenario.weather.wind_height_m if scenario else 10.0
+    water = thermal.water_temperature(forcing, pond, wind_height_m=wind_h,
+                                      upper_limit_c=upper)
+    table = monthly_forcing_table(forcing, par, water, pond)
+    title = meta.get("name", "site")
+    print(f"{title}  (lat {meta.get('latitude'):.3f}, lon {meta.get('longitude'):.3f}, "
+          f"{meta.get('elevation_m', float('nan')):.0f} m, UTC{meta.get('utc_offset_h'):+g} h)"
+          f"  pond depth {pond.depth_m:g} m, farm {pond.farm_area_m2:,.0f} m2")
+    for note in meta.get("notes", []):
+        print(f"  note: {note}")
+    print()
+    print(table.to_string(float_format=lambda v: f"{v:,.1f}"))
+    frozen_days = int(water["frozen"].groupby(water.index.date).any().sum())
+    print(f"\nfreezing days: {frozen_days}", end="")
+    if upper is not None:
+        hot = int(water["above_limit"].sum())
+        print(f"; hours above the strain's t_max_c ({upper:g} degC): {hot}", end="")
+    print("\n\n" + CAUTION)
+    if args.plot:
+        from .plots import weather_figure
+
+        path = weather_figure(table, water, forcing, title, args.plot)
+        print(f"\nfigure written: {path}")
+    return 0
+
+
+def cmd_run(args) -> int:
+    from .results import CAUTION, policy_summary, save, write_csv
+    from .scenario import load_scenario
+    from .simulate import simulate
+
+    scenario = load_scenario(args.scenario)
+    out = Path(args.out) if args.out else Path("out") / Path(args.scenario).stem
+    t0 = time.perf_counter()
+    ds = simulate(scenario, members=args.members, seed=args.seed)
+    elapsed = time.perf_counter() - t0
+    summary = policy_summary(ds)
+    out.mkdir(parents=True, exist_ok=True)
+    save(ds, out / "results.nc")
+    write_csv(summary, out / "summary.csv")
+    print(f"{scenario.study_name}: {ds.attrs['site']}, {scenario.year}, "
+          f"{scenario.pond.count} x {scenario.pond.area_m2:,.0f} m2 ponds at "
+          f"{scenario.pond.depth_m:g} m, strain {scenario.strain.name} "
+          f"({ds.sizes['member']} member(s), {elapsed:.1f} s)\n")
+    cols = ["yield_t_ha_yr", "productivity_g_m2_d", "harvests", "mean_density_g_m3",
+            "crashes", "efficiency_par_pct", "efficiency_solar_pct"]
+    labels = ["yield t/ha/yr", "g/m2/d", "harvests", "mean g/m3", "crashes",
+              "PE PAR %", "PE solar %"]
+    view = summary[cols].copy()
+    view.columns = labels
+    print(view.to_string(float_format=lambda v: f"{v:,.2f}"))
+    farm_t = summary["yield_t_ha_yr"] * scenario.pond.farm_area_m2 / 1e4
+    print("\nfarm biomass (t AFDW per year): "
+          + ", ".join(f"{p}: {v:,.1f}" for p, v in farm_t.items()))
+    bad = summary.index[~summary["plausible"]]
+    for p in bad:
+        print(f"WARNING: policy {p!r} converts more than 4.6 % of total solar radiation to "
+              "biomass, above the published maximum for C3 photosynthesis (Zhu, Long & Ort "
+              "2008); check the strain parameters.")
+    written = [out / "results.nc", out / "summary.csv"]
+    if not args.no_plots:
+        from .plots import run_figures
+
+        written += run_figures(ds, out)
+    print("\nwritten: " + ", ".join(str(p) for p in written))
+    print("\n" + CAUTION)
+    return 0
+
+
+if __name__ == "__main__":  # pragma: no cover
+    raise SystemExit(main())

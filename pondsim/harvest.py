@@ -1,0 +1,147 @@
+"""Harvest rules as data: one table of rule parameters over all members.
+
+The engine knows nothing of any one policy. Once a day, at the harvest hour, it asks
+:func:`removal_fraction` which share of each pond's culture volume to send to harvest.
+Every member carries its own rule parameters, so many policies (and many variants of one
+policy) run in one vectorised pass. A season plan is the same table with one column per
+calendar period and a map from day of year to period.
+
+Rule types (codes in :data:`RULE_CODES`):
+
+``none``
+    Never harvest.
+``fixed_fraction``
+    Every ``every_days`` days remove ``fraction`` of the culture volume.
+``threshold``
+    When the density has reached ``trigger_g_m3``, harvest down to ``residual_g_m3``.
+``fixed_interval``
+    Every ``every_days`` days harvest down to ``residual_g_m3`` (or remove ``fraction``).
+
+Operating limits apply to all rules: nothing is harvested below a minimum density, and
+the removed volume cannot exceed the daily harvest capacity of a pond.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+RULE_CODES = {"none": 0, "fixed_fraction": 1, "threshold": 2, "fixed_interval": 3}
+
+
+@dataclass(frozen=True)
+class HarvestRules:
+    """Harvest rule parameters for ``n`` members and ``s`` calendar periods.
+
+    Attributes
+    ----------
+    code : ndarray of int, shape (n, s)
+        Rule type per member and period, see :data:`RULE_CODES`.
+    fraction : ndarray, shape (n, s) [-]
+        Share of volume removed (``fixed_fraction``; ``fixed_interval`` without residual).
+        NaN where unused.
+    every_days : ndarray of int, shape (n, s) [d]
+        Days between scheduled harvests.
+    trigger : ndarray, shape (n, s) [g m-3]
+        Density that triggers a harvest (``threshold``). NaN where unused.
+    residual : ndarray, shape (n, s) [g m-3]
+        Density left after a harvest (``threshold``, ``fixed_interval``). NaN where unused.
+    period_of_day : ndarray of int, shape (n, n_days) or (1, n_days)
+        Column of the tables that applies on each day of the year.
+    """
+
+    code: np.ndarray
+    fraction: np.ndarray
+    every_days: np.ndarray
+    trigger: np.ndarray
+    residual: np.ndarray
+    period_of_day: np.ndarray
+
+    @property
+    def n_members(self) -> int:
+        return self.code.shape[0]
+
+    def on_day(self, day: int):
+        """The rule parameters of every member on *day* (0-based day of the year)."""
+        col = self.period_of_day[:, day]
+        rows = np.arange(self.n_members)
+        if self.period_of_day.shape[0] == 1:
+            col = np.broadcast_to(col, (self.n_members,))
+        pick = (rows, col)
+        return (self.code[pick], self.fraction[pick], self.every_days[pick],
+                self.trigger[pick], self.residual[pick])
+
+
+def rules_from_policies(policies, n_days: int, repeat: int = 1) -> HarvestRules:
+    """Build a one-period rule table from scenario policies.
+
+    Parameters
+    ----------
+    policies : sequence of :class:`pondsim.scenario.Policy`
+    n_days : int
+        Days in the simulated year.
+    repeat : int
+        Members per policy; the table is policy-major (all members of the first policy,
+        then the second, ...).
+    """
+    def col(values, dtype=float):
+        return np.repeat(np.asarray(values, dtype=dtype), repeat)[:, None]
+
+    nan = float("nan")
+    return HarvestRules(
+        code=col([RULE_CODES[p.type] for p in policies], dtype=np.int8),
+        fraction=col([nan if p.fraction is None else p.fraction for p in policies]),
+        every_days=col([p.every_days for p in policies], dtype=np.int32),
+        trigger=col([nan if p.trigger_g_m3 is None else p.trigger_g_m3 for p in policies]),
+        residual=col([nan if p.residual_g_m3 is None else p.residual_g_m3
+                      for p in policies]),
+        period_of_day=np.zeros((1, n_days), dtype=np.int16),
+    )
+
+
+def removal_fraction(rules: HarvestRules, day: int, density_g_m3, days_since_harvest,
+                     *, min_density_g_m3: float = 0.0, max_fraction: float = 1.0):
+    """Share of each pond's culture volume sent to harvest today [-].
+
+    Parameters
+    ----------
+    rules : HarvestRules
+    day : int
+        Day of the year, 0-based.
+    density_g_m3 : ndarray, shape (n,) [g m-3]
+        Density at the harvest hour.
+    days_since_harvest : ndarray of int, shape (n,) [d]
+        Whole days since the last scheduled harvest (or since inoculation).
+    min_density_g_m3 : float [g m-3]
+        Below this density nothing is harvested.
+    max_fraction : float [-]
+        Daily harvest capacity as a share of the pond volume.
+
+    Returns
+    -------
+    fraction : ndarray, shape (n,) in [0, max_fraction]
+    scheduled : ndarray of bool, shape (n,)
+        Members whose schedule fell due today (their day counter restarts).
+    """
+    code, fraction, every, trigger, residual = rules.on_day(day)
+    x = np.asarray(density_g_m3, dtype=float)
+    due = days_since_harvest >= every
+    # Harvest down to a residual: the share of volume that leaves residual behind.
+    with np.errstate(divide="ignore", invalid="ignore"):
+        to_residual = np.where(x > residual, 1.0 - residual / x, 0.0)
+    down = np.where(np.isnan(residual), fraction, to_residual)
+    frac = np.select(
+        [code == RULE_CODES["fixed_fraction"],
+         code == RULE_CODES["threshold"],
+         code == RULE_CODES["fixed_interval"]],
+        [np.where(due, fraction, 0.0),
+         np.where(x >= trigger, to_residual, 0.0),
+         np.where(due, down, 0.0)],
+        default=0.0,
+    )
+    frac = np.where(x >= min_density_g_m3, frac, 0.0)
+    frac = np.clip(np.nan_to_num(frac, nan=0.0), 0.0, max_fraction)
+    scheduled = due & ((code == RULE_CODES["fixed_fraction"])
+                       | (code == RULE_CODES["fixed_interval"]))
+    return frac, scheduled

@@ -1,0 +1,170 @@
+"""Figures (PNG) for the command line. Every axis carries its quantity and unit; colours
+and line styles are chosen to survive greyscale printing."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import matplotlib
+
+matplotlib.use("Agg")
+
+import matplotlib.pyplot as plt  # noqa: E402
+import numpy as np  # noqa: E402
+import pandas as pd  # noqa: E402
+
+from .results import CAUTION, _atomic_write  # noqa: E402
+
+STYLES = ["-", "--", "-.", ":"]
+COLORS = ["#1b4f72", "#b9770e", "#1e8449", "#7d3c98", "#a93226", "#5d6d7e"]
+
+FLUX_LABELS = {
+    "q_shortwave": "absorbed solar",
+    "q_longwave_in": "sky longwave",
+    "q_longwave_out": "emitted longwave",
+    "q_evaporation": "evaporation",
+    "q_convection": "convection",
+    "q_ground": "ground",
+    "q_makeup": "makeup water",
+    "q_input": "heat input",
+}
+
+
+def _save(fig, path) -> Path:
+    fig.text(0.01, 0.005, "Estimates only — see the caution in the README.", fontsize=7,
+             color="0.4")
+    path = Path(path)
+    out = _atomic_write(path, lambda tmp: fig.savefig(tmp, dpi=110, format="png"))
+    plt.close(fig)
+    return out
+
+
+def _style(i):
+    return {"color": COLORS[i % len(COLORS)], "linestyle": STYLES[i % len(STYLES)]}
+
+
+def weather_figure(table: pd.DataFrame, water: pd.DataFrame, forcing: pd.DataFrame,
+                   title: str, path) -> Path:
+    """Monthly light, air vs water temperature, evaporation and the energy budget."""
+    months = table.index[:-1]
+    x = np.arange(len(months))
+    fig, axes = plt.subplots(2, 2, figsize=(12, 8), constrained_layout=True)
+    fig.suptitle(f"{title}: weather, light and pond water")
+
+    ax = axes[0, 0]
+    ax.bar(x - 0.2, table["GHI kWh/m2/d"].iloc[:-1], 0.4, color=COLORS[0],
+           label="GHI [kWh m$^{-2}$ d$^{-1}$]")
+    ax.set_ylabel("GHI [kWh m$^{-2}$ d$^{-1}$]")
+    ax2 = ax.twinx()
+    ax2.bar(x + 0.2, table["PAR mol/m2/d"].iloc[:-1], 0.4, color=COLORS[1], hatch="//",
+            label="PAR [mol m$^{-2}$ d$^{-1}$]")
+    ax2.set_ylabel("PAR entering the culture [mol m$^{-2}$ d$^{-1}$]")
+    ax.set_xticks(x, months)
+    ax.set_title("Mean daily irradiation")
+    h1, l1 = ax.get_legend_handles_labels()
+    h2, l2 = ax2.get_legend_handles_labels()
+    ax.legend(h1 + h2, l1 + l2, loc="upper left", fontsize=8)
+
+    ax = axes[0, 1]
+    day = pd.Index(forcing.index.date)
+    air = forcing["temp_air"].groupby(day).mean()
+    tw = water["water_temperature"].groupby(day).agg(["mean", "min", "max"])
+    dates = pd.to_datetime(tw.index)
+    ax.fill_between(dates, tw["min"], tw["max"], color=COLORS[0], alpha=0.25,
+                    label="water, daily range")
+    ax.plot(dates, tw["mean"], color=COLORS[0], label="water, daily mean")
+    ax.plot(dates, air.to_numpy(), color=COLORS[1], linestyle="--", lw=1,
+            label="air, daily mean")
+    ax.set_ylabel("temperature [°C]")
+    ax.set_title("Air and pond water temperature")
+    ax.legend(fontsize=8)
+    ax.grid(alpha=0.3)
+
+    ax = axes[1, 0]
+    ax.bar(x, table["evap mm/d"].iloc[:-1], color=COLORS[2], label="evaporation")
+    ax.set_ylabel("evaporation [mm d$^{-1}$]")
+    ax.set_xticks(x, months)
+    ax.set_title("Evaporation and farm makeup water")
+    ax2 = ax.twinx()
+    ax2.plot(x, table["makeup m3"].iloc[:-1], "k-o", ms=4, label="makeup water")
+    ax2.set_ylabel("makeup water for the farm [m$^3$ month$^{-1}$]")
+    h1, l1 = ax.get_legend_handles_labels()
+    h2, l2 = ax2.get_legend_handles_labels()
+    ax.legend(h1 + h2, l1 + l2, loc="upper left", fontsize=8)
+
+    ax = axes[1, 1]
+    terms = [c for c in FLUX_LABELS if c in water]
+    monthly = water[terms].groupby(water.index.month).mean()
+    pos = np.zeros(len(monthly))
+    neg = np.zeros(len(monthly))
+    hatches = ["", "//", "..", "xx", "\\\\", "++", "oo", "--"]
+    for i, term in enumerate(terms):
+        v = monthly[term].to_numpy()
+        base = np.where(v >= 0, pos, neg)
+        ax.bar(x[: len(v)], v, bottom=base, color=COLORS[i % len(COLORS)],
+               hatch=hatches[i % len(hatches)], edgecolor="white", lw=0.3,
+               label=FLUX_LABELS[term])
+        pos += np.where(v >= 0, v, 0)
+        neg += np.where(v < 0, v, 0)
+    ax.axhline(0, color="k", lw=0.8)
+    ax.set_xticks(x, months)
+    ax.set_ylabel("mean heat flux into the pond [W m$^{-2}$]")
+    ax.set_title("Monthly energy budget (gains up, losses down)")
+    ax.legend(fontsize=7, ncol=2, loc="lower left")
+    return _save(fig, path)
+
+
+def run_figures(ds, out_dir) -> list[Path]:
+    """Figures of a simulated year: density with K(t), monthly productivity, forcing."""
+    out_dir = Path(out_dir)
+    dates = pd.to_datetime(ds["date"].values)
+    written = []
+
+    fig, ax = plt.subplots(figsize=(11, 5), constrained_layout=True)
+    ax.plot(dates, ds["carrying_capacity"], color="k", lw=2, alpha=0.5,
+            label="carrying capacity K")
+    for i, p in enumerate(ds["policy"].values):
+        dens = ds["density"].sel(policy=p)
+        ax.plot(dates, dens.median("member"), lw=1.2, label=f"{p} (median member)",
+                **_style(i))
+    ax.set_ylabel("culture density [g m$^{-3}$ AFDW]")
+    ax.set_title(f"{ds.attrs['site']}: density at the end of each day and K(t)")
+    ax.grid(alpha=0.3)
+    ax.legend(fontsize=8)
+    written.append(_save(fig, out_dir / "density.png"))
+
+    fig, ax = plt.subplots(figsize=(11, 5), constrained_layout=True)
+    month = ds["date"].dt.month
+    monthly = ds["harvested"].groupby(month).mean("day").mean("member")  # g m-2 d-1
+    pols = list(ds["policy"].values)
+    width = 0.8 / max(len(pols), 1)
+    x = np.arange(1, 13)
+    hatches = ["", "//", "..", "xx", "\\\\", "++"]
+    for i, p in enumerate(pols):
+        ax.bar(x - 0.4 + width * (i + 0.5), monthly.sel(policy=p), width,
+               color=COLORS[i % len(COLORS)], hatch=hatches[i % len(hatches)],
+               edgecolor="white", label=str(p))
+    ax.set_xticks(x, [pd.Timestamp(2000, m, 1).strftime("%b") for m in x])
+    ax.set_ylabel("areal productivity, harvested [g m$^{-2}$ d$^{-1}$]")
+    ax.set_title("Monthly areal productivity by policy")
+    ax.legend(fontsize=8)
+    ax.grid(axis="y", alpha=0.3)
+    written.append(_save(fig, out_dir / "monthly_productivity.png"))
+
+    fig, ax = plt.subplots(figsize=(11, 4.5), constrained_layout=True)
+    ax.plot(dates, ds["par_daily"], color=COLORS[1], lw=0.8,
+            label="PAR entering the culture")
+    ax.set_ylabel("daily PAR [mol m$^{-2}$ d$^{-1}$]")
+    ax2 = ax.twinx()
+    ax2.plot(dates, ds["water_temperature"], color=COLORS[0], linestyle="--", lw=1.2,
+             label="water temperature (daily mean)")
+    ax2.set_ylabel("water temperature [°C]")
+    h1, l1 = ax.get_legend_handles_labels()
+    h2, l2 = ax2.get_legend_handles_labels()
+    ax.legend(h1 + h2, l1 + l2, fontsize=8, loc="upper left")
+    ax.set_title("Daily light and water temperature driving growth")
+    written.append(_save(fig, out_dir / "forcing.png"))
+    return written
+
+
+__all__ = ["weather_figure", "run_figures", "CAUTION"]
