@@ -107,7 +107,8 @@ def cmd_weather(args) -> int:
     forcing, meta, pond, scenario = _forcing_for(args)
     lt = scenario.light if scenario else None
     par = light.par_at_surface(forcing, par_fraction=lt.par_fraction if lt else None,
-                               photons_per_joule=lt.photons_per_joule_umol if lt else None)
+                               photons_per_joule=lt.photons_per_joule_umol if lt else None,
+                               refractive_index=pond.refractive_index)
     upper = scenario.strain.t_max_c if scenario else None
     wind_h = scenario.weather.wind_height_m if scenario else 10.0
     water = thermal.water_temperature(forcing, pond, wind_height_m=wind_h,

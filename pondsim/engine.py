@@ -116,8 +116,9 @@ class Daily:
     """Daily outputs of :func:`integrate` (arrays of shape (n_members, n_days)).
 
     density [g m-3] at the end of the day; removed [g m-3] culture biomass sent to harvest
-    (before recovery losses); harvest_fraction [-] of the volume; growth_rate [d-1] mean
-    net specific rate; lost [g m-3] biomass lost to crashes; crashed (bool); status
+    (before recovery losses, including what a crash salvages); harvest_fraction [-] of
+    the volume; growth_rate [d-1] mean net specific rate; lost [g m-3] biomass lost to
+    crashes; crashed (bool); hazard [d-1] crash hazard at the end of the day; status
     (0 growing, 1 restarting after a crash, 2 not yet inoculated). ``ledger`` holds the
     per-member totals [g m-3]: inoculated, grown, respired, removed, lost, final.
     """
@@ -128,6 +129,7 @@ class Daily:
     growth_rate: np.ndarray
     lost: np.ndarray
     crashed: np.ndarray
+    hazard: np.ndarray
     status: np.ndarray
     ledger: dict
 
@@ -257,6 +259,7 @@ def _rates_factory(drivers: Drivers, set_of_member):
 
 def integrate(drivers: Drivers, rules: HarvestRules, operation: Operation, *,
               set_of_member: np.ndarray | None = None, crash=None,
+              stream_of_member: np.ndarray | None = None,
               seed: int | None = None, progress=None, check_ledger: bool = True) -> Daily:
     """Integrate density for every member over the year.
 
@@ -273,6 +276,9 @@ def integrate(drivers: Drivers, rules: HarvestRules, operation: Operation, *,
         Daily crash hazard; None for no crashes.
     seed : int, optional
         Seed of the members' random streams (crash draws).
+    stream_of_member : ndarray of int, shape (n,), optional
+        Random stream of each member (default: its own index). Giving member j of every
+        policy stream j uses common random numbers across policies.
     progress : callable, optional
         Called with the number of days done after each day (for progress bars).
     check_ledger : bool
@@ -295,7 +301,6 @@ def integrate(drivers: Drivers, rules: HarvestRules, operation: Operation, *,
     hour_factors, rates = _rates_factory(drivers, set_of_member)
     dark = ~(drivers.par > 0).any(axis=0)  # hours dark for every set
     maint = _member_view(drivers.maintenance, set_of_member)
-    cap = _member_view(drivers.capacity, set_of_member)
     op = operation
 
     x = np.zeros(n)
@@ -308,11 +313,15 @@ def integrate(drivers: Drivers, rules: HarvestRules, operation: Operation, *,
         density=np.zeros((n, n_days)), removed=np.zeros((n, n_days)),
         harvest_fraction=np.zeros((n, n_days)), growth_rate=np.zeros((n, n_days)),
         lost=np.zeros((n, n_days)), crashed=np.zeros((n, n_days), dtype=bool),
+        hazard=np.zeros((n, n_days), dtype=np.float32),
         status=np.zeros((n, n_days), dtype=np.int8), ledger=totals,
     )
-    streams = None
     if crash is not None:
-        streams = crash.streams(seed, n)
+        smooth = crash.smoothed(drivers.capacity)
+        k_smooth = _member_view(smooth, set_of_member)
+        k_fall = _member_view(crash.drop_index(smooth), set_of_member)
+        draws = crash.streams(seed, np.arange(n) if stream_of_member is None
+                              else stream_of_member)
     h6 = STEP_D / 6.0
     rate_sum = np.zeros(n)
 
@@ -358,7 +367,6 @@ def integrate(drivers: Drivers, rules: HarvestRules, operation: Operation, *,
             k3 = (g3 - m) * x3
             x4 = x + STEP_D * k3
             g4, _ = rates(x4, fac)
-            k4 = (g4 - m) * x4
             grown = h6 * (g1 * x + 2.0 * (g2 * x2 + g3 * x3) + g4 * x4)
             resp = (h6 * m) * (x + 2.0 * (x2 + x3) + x4)
             rate_sum += g1 - m
@@ -369,9 +377,10 @@ def integrate(drivers: Drivers, rules: HarvestRules, operation: Operation, *,
                                            rate_sum / HOURS_PER_DAY, 0.0)
         since += 1
         if crash is not None:
-            k_today = cap(day) if set_of_member is None else cap(day)
-            k_before = cap(max(day - crash.window_days, 0))
-            hit = crash.draw(streams, day, x, k_today, k_before) & (status == STATUS_GROWING)
+            hazard = crash.hazard(x, k_smooth(day), k_fall(day))
+            hazard = np.where(status == STATUS_GROWING, hazard, 0.0)
+            out.hazard[:, day] = hazard
+            hit = crash.draw(draws, day, hazard) & (status == STATUS_GROWING)
             if hit.any():
                 lost = np.where(hit, x * crash.loss_fraction, 0.0)
                 salvage = np.where(hit, x - lost, 0.0)

@@ -29,15 +29,22 @@ LIGHT = {
 
 #: Pond thermal stage.
 THERMAL = {
-    "water_temperature": ("pond water temperature", "degC"),
-    "evaporation": ("evaporation in the step", "mm"),
+    "water_temperature": ("pond water temperature, mean over the hour", "degC"),
+    "water_temperature_end": ("pond water temperature at the end of the hour", "degC"),
+    "surface_temperature": ("surface temperature (ice surface when frozen)", "degC"),
+    "evaporation": ("evaporation in the step (negative: condensation)", "mm"),
+    "rain": ("rain falling on the pond in the step", "mm"),
+    "makeup": ("makeup water added in the step, max(evaporation - rain, 0)", "mm"),
+    "ice": ("latent heat store of ice on the pond", "J m-2"),
+    "frozen": ("pond frozen (water held at 0 degC under ice)", "bool"),
+    "above_limit": ("water above the strain's upper temperature limit", "bool"),
     "q_shortwave": ("absorbed shortwave", "W m-2"),
     "q_longwave_in": ("absorbed sky longwave", "W m-2"),
     "q_longwave_out": ("emitted longwave (loss, negative)", "W m-2"),
     "q_evaporation": ("latent heat of evaporation (loss, negative)", "W m-2"),
     "q_convection": ("sensible heat exchange with the air", "W m-2"),
     "q_ground": ("conduction from the ground", "W m-2"),
-    "q_makeup": ("heat carried by makeup water", "W m-2"),
+    "q_makeup": ("heat carried by makeup water and rain", "W m-2"),
     "q_input": ("heat input (e.g. waste heat)", "W m-2"),
 }
 

@@ -73,31 +73,49 @@ class HarvestRules:
                 self.trigger[pick], self.residual[pick])
 
 
-def rules_from_policies(policies, n_days: int, repeat: int = 1) -> HarvestRules:
-    """Build a one-period rule table from scenario policies.
+def season_of_day(dates, seasons) -> np.ndarray:
+    """Season index (0-based, order of *seasons*) of each date.
 
     Parameters
     ----------
-    policies : sequence of :class:`pondsim.scenario.Policy`
-    n_days : int
-        Days in the simulated year.
-    repeat : int
-        Members per policy; the table is policy-major (all members of the first policy,
-        then the second, ...).
+    dates : pandas.DatetimeIndex or array of datetime64
+        One entry per simulated day.
+    seasons : sequence of :class:`pondsim.scenario.Season`
     """
-    def col(values, dtype=float):
-        return np.repeat(np.asarray(values, dtype=dtype), repeat)[:, None]
+    import pandas as pd
+
+    month_to_season = np.zeros(13, dtype=np.int16)
+    for i, season in enumerate(seasons):
+        month_to_season[list(season.months)] = i
+    return month_to_season[pd.DatetimeIndex(dates).month.to_numpy()]
+
+
+def build_rules(policies, plans, seasons, dates, repeat: int = 1):
+    """Rule table for every policy and plan, ``repeat`` members each (policy-major).
+
+    A plain policy applies the same rule in every season; a plan picks one policy per
+    season. Returns ``(rules, names)`` with the entry names in table order (policies
+    first, then plans).
+    """
+    by_name = {p.name: p for p in policies}
+    entries = [[p] * len(seasons) for p in policies]
+    entries += [[by_name[plan.policy_by_season[s.name]] for s in seasons] for plan in plans]
+    names = [p.name for p in policies] + [plan.name for plan in plans]
+
+    def table(get, dtype=float):
+        rows = np.array([[get(p) for p in row] for row in entries], dtype=dtype)
+        return np.repeat(rows, repeat, axis=0)
 
     nan = float("nan")
-    return HarvestRules(
-        code=col([RULE_CODES[p.type] for p in policies], dtype=np.int8),
-        fraction=col([nan if p.fraction is None else p.fraction for p in policies]),
-        every_days=col([p.every_days for p in policies], dtype=np.int32),
-        trigger=col([nan if p.trigger_g_m3 is None else p.trigger_g_m3 for p in policies]),
-        residual=col([nan if p.residual_g_m3 is None else p.residual_g_m3
-                      for p in policies]),
-        period_of_day=np.zeros((1, n_days), dtype=np.int16),
+    rules = HarvestRules(
+        code=table(lambda p: RULE_CODES[p.type], np.int8),
+        fraction=table(lambda p: nan if p.fraction is None else p.fraction),
+        every_days=table(lambda p: p.every_days, np.int32),
+        trigger=table(lambda p: nan if p.trigger_g_m3 is None else p.trigger_g_m3),
+        residual=table(lambda p: nan if p.residual_g_m3 is None else p.residual_g_m3),
+        period_of_day=season_of_day(dates, seasons)[None, :],
     )
+    return rules, names
 
 
 def removal_fraction(rules: HarvestRules, day: int, density_g_m3, days_since_harvest,

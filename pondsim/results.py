@@ -13,6 +13,7 @@ import xarray as xr
 
 from .engine import HOURS_PER_DAY
 from .glossary import RESULTS
+from .harvest import season_of_day
 
 #: Energy content of algal biomass [kJ g-1]; Weyer et al. (2010) BioEnergy Res. 3:204-213
 #: use 21.9 kJ g-1 (via REFERENCES.md, secondary); 20-25 kJ g-1 is the usual range.
@@ -67,6 +68,8 @@ def build_dataset(daily, drivers, hourly: pd.DataFrame, scenario, meta: dict, *,
             "crash_loss": (dims3, cube(daily.lost) * depth,
                            {"long_name": "biomass lost to crashes", "units": "g m-2 d-1"}),
             "crashed": (dims3, cube(daily.crashed).astype(np.int8), _attrs("crashed")),
+            "hazard": (dims3, cube(daily.hazard),
+                       {"long_name": "daily culture crash hazard", "units": "d-1"}),
             "status": (dims3, cube(daily.status), {
                 **_attrs("status"),
                 "flag_values": "0 1 2",
@@ -85,6 +88,8 @@ def build_dataset(daily, drivers, hourly: pd.DataFrame, scenario, meta: dict, *,
         },
         coords={
             "policy": list(policy_names),
+            "season": (("day",), np.array([s.name for s in scenario.seasons])[
+                season_of_day(dates, scenario.seasons)]),
             "member": np.arange(members),
             "day": np.arange(1, n_days + 1),
             "date": (("day",), dates.to_numpy()),

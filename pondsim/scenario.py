@@ -155,6 +155,27 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "min_density_g_m3": Key("float", 0.0, "Below this density nothing is harvested.",
                                 "g m-3", 0.0, 20000.0),
     },
+    "crash": {
+        "enabled": Key("bool", True, "Draw culture crashes (false: deterministic runs)."),
+        "base_hazard_per_d": Key("float", 0.002, "Daily crash hazard whatever the weather "
+                                 "(contamination, grazers). ASSUMPTION: replace with the "
+                                 "site's crash history.", "d-1", 0.0, 1.0),
+        "stress_hazard_per_d": Key("float", 0.5, "Hazard added at full overshoot and one "
+                                   "unit of K drop. ASSUMPTION.", "d-1", 0.0, 50.0),
+        "overshoot_onset": Key("float", 0.8, "Density/K ratio above which overshoot "
+                               "stress counts. ASSUMPTION.", "1", 0.0, 0.99),
+        "window_days": Key("int", 3, "Window of the K-drop index ln K(t-w) - ln K(t).", "d",
+                           1, 30),
+        "drop_scale": Key("float", 0.2, "Fall of ln K over the window that counts as one "
+                          "unit of drop stress (0.2 = K down 18 %). ASSUMPTION.", "1", 0.0,
+                          5.0, open_low=True),
+        "loss_fraction": Key("float", 0.8, "Share of standing biomass lost in a crash (the "
+                             "rest is salvaged as harvest).", "1", 0.0, 1.0),
+        "max_season_probability": Key("float", 0.10, "Risk limit: highest acceptable "
+                                      "probability of at least one crash in a season when "
+                                      "naming the best policy per season.", "1", 0.0, 1.0,
+                                      open_low=True),
+    },
     "run": {
         "members": Key("int", 1, "Stochastic members (crash draws) per policy.", "", 1,
                        1000000),
@@ -179,6 +200,23 @@ POLICY_KEYS: dict[str, Key] = {
     "residual_g_m3": Key("float", None, "Density left after a harvest (threshold, "
                          "fixed_interval).", "g m-3", 0.0, 20000.0, open_low=True),
 }
+
+
+SEASON_KEYS: dict[str, Key] = {
+    "name": Key("str", None, "Season name.", required=True),
+    "months": Key("ints", None, "Calendar months (1-12) of the season; seasons must cover "
+                  "every month once.", "", 1, 12, required=True),
+}
+
+PLAN_KEYS: dict[str, Key] = {
+    "name": Key("str", None, "Unique plan name (shown beside the policies).", required=True),
+    "policy_by_season": Key("table", None, "Inline table: season name -> policy name, "
+                            "one entry per season.", required=True),
+}
+
+#: Meteorological seasons by month, hemisphere-neutral names; used when none are given.
+DEFAULT_SEASONS = (("Dec-Feb", (12, 1, 2)), ("Mar-May", (3, 4, 5)),
+                   ("Jun-Aug", (6, 7, 8)), ("Sep-Nov", (9, 10, 11)))
 
 
 # --------------------------------------------------------------------------------------
@@ -277,6 +315,32 @@ class Policy:
 
 
 @dataclass(frozen=True)
+class Crash:
+    enabled: bool
+    base_hazard_per_d: float
+    stress_hazard_per_d: float
+    overshoot_onset: float
+    window_days: int
+    drop_scale: float
+    loss_fraction: float
+    max_season_probability: float
+
+
+@dataclass(frozen=True)
+class Season:
+    name: str
+    months: tuple[int, ...]
+
+
+@dataclass(frozen=True)
+class Plan:
+    """A season plan: one policy name per season."""
+
+    name: str
+    policy_by_season: dict[str, str]
+
+
+@dataclass(frozen=True)
 class Run:
     members: int
     seed: int
@@ -298,6 +362,9 @@ class Scenario:
     harvest: Harvest
     policies: tuple[Policy, ...]
     run: Run
+    crash: Crash = None  # type: ignore[assignment]
+    seasons: tuple[Season, ...] = tuple(Season(n, m) for n, m in DEFAULT_SEASONS)
+    plans: tuple[Plan, ...] = ()
     path: Path | None = None
     extra: dict = field(default_factory=dict, compare=False)
 
@@ -384,6 +451,20 @@ def _convert(value, key: Key, path, name, base_dir: Path):
                              f"got {got}", path=path, field=name)
         return tuple(_check_number(v, key, path, f"{name}[{i + 1}]")
                      for i, v in enumerate(value))
+    if kind == "ints":
+        if not isinstance(value, list) or not value:
+            raise InputError(f"expected a list of whole numbers ({_allowed(key)}), got "
+                             f"{value!r}", path=path, field=name)
+        return tuple(_convert(v, Key("int", low=key.low, high=key.high), path,
+                              f"{name}[{i + 1}]", base_dir) for i, v in enumerate(value))
+    if kind == "table":
+        if not isinstance(value, dict):
+            raise InputError(f"expected an inline table {{ name = \"value\", ... }}, got "
+                             f"{value!r}", path=path, field=name)
+        for k, v in value.items():
+            if not isinstance(v, str):
+                raise InputError(f"expected text, got {v!r}", path=path, field=f"{name}.{k}")
+        return dict(value)
     raise AssertionError(kind)  # pragma: no cover - schema bug
 
 
@@ -407,7 +488,7 @@ def _parse_table(table, keys: dict[str, Key], path, prefix: str, base_dir: Path)
     return out
 
 
-TOP_LEVEL = tuple(s for s in SCHEMA if "." not in s) + ("policy",)
+TOP_LEVEL = tuple(s for s in SCHEMA if "." not in s) + ("policy", "season", "plan")
 
 
 def parse_scenario(data: dict, path: str | Path | None = None) -> Scenario:
@@ -449,12 +530,74 @@ def parse_scenario(data: dict, path: str | Path | None = None) -> Scenario:
         raise InputError(f"start date {inoc.start_date} lies outside the study year {year}",
                          path=path, field="inoculation.start_date")
     policies = _parse_policies(data.get("policy", []), path, base_dir)
+    seasons = _parse_seasons(data.get("season"), path, base_dir)
+    plans = _parse_plans(data.get("plan", []), policies, seasons, path, base_dir)
     return Scenario(
         study_name=sec["study"]["name"], year=year, site=site, weather=weather,
         pond=Pond(**sec["pond"]), light=Light(**sec["light"]), strain=strain,
         inoculation=inoc, harvest=Harvest(**sec["harvest"]), policies=policies,
-        run=Run(**sec["run"]), path=Path(path).resolve() if path else None,
+        run=Run(**sec["run"]), crash=Crash(**sec["crash"]), seasons=seasons, plans=plans,
+        path=Path(path).resolve() if path else None,
     )
+
+
+def _parse_seasons(raw, path, base_dir) -> tuple[Season, ...]:
+    if raw is None:
+        return tuple(Season(n, m) for n, m in DEFAULT_SEASONS)
+    if not isinstance(raw, list) or not raw:
+        raise InputError("expected one or more [[season]] tables", path=path, field="season")
+    seasons = []
+    owner: dict[int, str] = {}
+    for i, table in enumerate(raw):
+        prefix = f"season[{i + 1}]"
+        season = Season(**_parse_table(table, SEASON_KEYS, path, prefix, base_dir))
+        for month in season.months:
+            if month in owner:
+                raise InputError(f"month {month} is in season {owner[month]!r} and in "
+                                 f"{season.name!r}; seasons must not overlap", path=path,
+                                 field=f"{prefix}.months")
+            owner[month] = season.name
+        seasons.append(season)
+    missing = [m for m in range(1, 13) if m not in owner]
+    if missing:
+        raise InputError(f"months {missing} belong to no season; the seasons must cover "
+                         "all 12 months", path=path, field="season.months")
+    names = [s.name for s in seasons]
+    if len(set(names)) != len(names):
+        raise InputError("season names must be unique", path=path, field="season.name")
+    return tuple(seasons)
+
+
+def _parse_plans(raw, policies, seasons, path, base_dir) -> tuple[Plan, ...]:
+    if not isinstance(raw, list):
+        raise InputError("expected [[plan]] tables", path=path, field="plan")
+    plans = []
+    policy_names = [p.name for p in policies]
+    season_names = [s.name for s in seasons]
+    taken = set(policy_names)
+    for i, table in enumerate(raw):
+        prefix = f"plan[{i + 1}]"
+        plan = Plan(**_parse_table(table, PLAN_KEYS, path, prefix, base_dir))
+        if plan.name in taken:
+            raise InputError(f"name {plan.name!r} is already used by a policy or plan",
+                             path=path, field=f"{prefix}.name")
+        taken.add(plan.name)
+        for season, policy in plan.policy_by_season.items():
+            where = f"{prefix}.policy_by_season.{season}"
+            if season not in season_names:
+                raise InputError(f"unknown season{did_you_mean(season, season_names)}; "
+                                 "seasons: " + ", ".join(season_names), path=path,
+                                 field=where)
+            if policy not in policy_names:
+                raise InputError(f"unknown policy {policy!r}"
+                                 f"{did_you_mean(policy, policy_names)}; policies: "
+                                 + ", ".join(policy_names), path=path, field=where)
+        missing = [s for s in season_names if s not in plan.policy_by_season]
+        if missing:
+            raise InputError(f"no policy for season(s) {missing}; a plan needs one policy "
+                             "per season", path=path, field=f"{prefix}.policy_by_season")
+        plans.append(plan)
+    return tuple(plans)
 
 
 def _build_weather(sec, path) -> Weather:
@@ -580,7 +723,11 @@ def load_scenario(path: str | Path) -> Scenario:
 def schema_markdown() -> str:
     """The scenario reference as Markdown tables (one per section)."""
     lines = []
-    sections = list(SCHEMA.items()) + [("policy (array of tables [[policy]])", POLICY_KEYS)]
+    sections = list(SCHEMA.items()) + [
+        ("policy (array of tables [[policy]])", POLICY_KEYS),
+        ("season (array of tables [[season]]; default: Dec-Feb, Mar-May, Jun-Aug, "
+         "Sep-Nov)", SEASON_KEYS),
+        ("plan (array of tables [[plan]])", PLAN_KEYS)]
     for section, keys in sections:
         lines += [f"### `[{section}]`", "", "| key | unit | default | allowed | meaning |",
                   "|---|---|---|---|---|"]
@@ -591,7 +738,10 @@ def schema_markdown() -> str:
                 default = "—"
             else:
                 default = f"`{key.default}`"
-            allowed = _allowed(key) if (key.choices or key.low is not None) else key.kind
+            allowed = _allowed(key) if (key.choices or key.low is not None) else {
+                "floats12": "12 numbers", "ints": "list of whole numbers",
+                "table": "inline table", "path": "file path", "date": "date YYYY-MM-DD",
+            }.get(key.kind, key.kind)
             unit = key.unit or ""
             lines.append(f"| `{name}` | {unit} | {default} | {allowed} | {key.doc} |")
         lines.append("")

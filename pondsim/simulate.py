@@ -9,9 +9,10 @@ import pandas as pd
 import xarray as xr
 
 from . import capacity, kinetics, light, thermal
+from .crash import CrashModel
 from .engine import HOURS_PER_DAY, Drivers, Operation, integrate
 from .errors import InputError
-from .harvest import rules_from_policies
+from .harvest import build_rules
 from .results import build_dataset
 from .scenario import Scenario
 
@@ -51,12 +52,17 @@ def _one_year(forcing: pd.DataFrame, scenario: Scenario) -> pd.DataFrame:
 def hourly_light_and_water(forcing: pd.DataFrame, scenario: Scenario) -> pd.DataFrame:
     """PAR entering the culture and the pond's thermal budget, hour by hour."""
     par = light.par_at_surface(forcing, par_fraction=scenario.light.par_fraction,
-                               photons_per_joule=scenario.light.photons_per_joule_umol)
+                               photons_per_joule=scenario.light.photons_per_joule_umol,
+                               refractive_index=scenario.pond.refractive_index)
     water = thermal.water_temperature(forcing, scenario.pond,
                                       wind_height_m=scenario.weather.wind_height_m,
                                       upper_limit_c=scenario.strain.t_max_c)
     out = water.copy()
     out["par"] = np.asarray(par, dtype=float)
+    out["ghi"] = forcing["ghi"].to_numpy(dtype=float)
+    ppj = scenario.light.photons_per_joule_umol
+    out.attrs["photons_per_joule_umol"] = (light.photons_per_joule_par_astm_g173()
+                                           if ppj is None else ppj)
     return out
 
 
@@ -130,18 +136,31 @@ def simulate(scenario: Scenario, members: int | None = None, seed: int | None = 
     table, meta = load_forcing(scenario) if forcing is None else forcing
     hourly = hourly_light_and_water(table, scenario)
     drivers = build_drivers(hourly, scenario)
-    n_days = drivers.n_days
-    policies = scenario.policies
-    rules = rules_from_policies(policies, n_days, repeat=members)
-    bar = _progress_bar(show, n_days, rules.n_members)
+    dates = hourly.index[::HOURS_PER_DAY]
+    rules, names = build_rules(scenario.policies, scenario.plans, scenario.seasons, dates,
+                               repeat=members)
+    stream = np.tile(np.arange(members), len(names))  # common random numbers
+    bar = _progress_bar(show, drivers.n_days, rules.n_members)
     try:
-        daily = integrate(drivers, rules, operation_of(scenario), seed=seed,
+        daily = integrate(drivers, rules, operation_of(scenario),
+                          crash=crash_model_of(scenario), seed=seed, stream_of_member=stream,
                           progress=None if bar is None else (lambda d: bar.update(1)))
     finally:
         if bar is not None:
             bar.close()
-    return build_dataset(daily, drivers, hourly, scenario, meta,
-                         policy_names=[p.name for p in policies], members=members)
+    return build_dataset(daily, drivers, hourly, scenario, meta, policy_names=names,
+                         members=members)
+
+
+def crash_model_of(scenario: Scenario) -> CrashModel | None:
+    """The scenario's crash hazard model, or None when crashes are switched off."""
+    c = scenario.crash
+    if c is None or not c.enabled:
+        return None
+    return CrashModel(base_hazard_per_d=c.base_hazard_per_d,
+                      stress_hazard_per_d=c.stress_hazard_per_d,
+                      overshoot_onset=c.overshoot_onset, window_days=c.window_days,
+                      drop_scale=c.drop_scale, loss_fraction=c.loss_fraction)
 
 
 def _progress_bar(show: bool, n_days: int, n_members: int):

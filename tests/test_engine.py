@@ -15,9 +15,9 @@ import dataclasses
 
 import numpy as np
 import pytest
+from engine_cases import OPERATION, diurnal_par, diurnal_temp_factor, drivers, rules
 from scipy.integrate import solve_ivp
 
-from engine_cases import OPERATION, diurnal_par, diurnal_temp_factor, drivers, rules
 from pondsim import kinetics
 from pondsim.engine import HOURS_PER_DAY, check_closure, integrate
 from pondsim.harvest import RULE_CODES

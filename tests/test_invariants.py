@@ -6,10 +6,10 @@ against scipy quadrature in test_kinetics.py."""
 from __future__ import annotations
 
 import numpy as np
+from engine_cases import OPERATION, diurnal_par, diurnal_temp_factor, drivers, rules
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from engine_cases import OPERATION, diurnal_par, diurnal_temp_factor, drivers, rules
 from pondsim import kinetics
 from pondsim.engine import FAST_DEPTH_MEANS, check_closure, integrate
 from pondsim.harvest import RULE_CODES

@@ -55,7 +55,7 @@ def test_readme_reference_lists_every_key():
     for section, keys in SCHEMA.items():
         for name in keys:
             assert f"`{name}`" in readme, f"README lacks [{section}] {name}"
-    assert schema_markdown().count("###") == len(SCHEMA) + 1
+    assert schema_markdown().count("###") == len(SCHEMA) + 3
 
 
 BAD_CASES = [
@@ -72,7 +72,7 @@ BAD_CASES = [
      lambda t: t.replace("depth_m = 0.25", "depth_m = 3.0"), "pond.depth_m",
      r"out of range; allowed: a number in \[0.05, 1\] m"),
     ("Tmin >= Topt",
-     lambda t: t.replace("t_min_c = 6 ", "t_min_c = 30 "), "strain.t_opt_c",
+     lambda t: t.replace("t_min_c = 2 ", "t_min_c = 30 "), "strain.t_opt_c",
      r"t_min_c < t_opt_c < t_max_c"),
     ("missing weather file",
      lambda t: t.replace('path = "../weather/kestrel_flats.epw"', 'path = "nowhere.epw"'),
@@ -81,13 +81,13 @@ BAD_CASES = [
      lambda t: t.replace('light_model = "steele"', 'light_model = "steel"'),
      "strain.light_model", r"did you mean 'steele'"),
     ("negative fraction",
-     lambda t: t.replace("fraction = 0.2", "fraction = -0.2"), "policy[1].fraction",
+     lambda t: t.replace("fraction = 0.15", "fraction = -0.15"), "policy[1].fraction",
      r"allowed: a number in \(0, 1\]"),
     ("residual above trigger",
-     lambda t: t.replace("residual_g_m3 = 300\n\n[[policy]]", "residual_g_m3 = 900\n\n"
+     lambda t: t.replace("residual_g_m3 = 400\n\n[[policy]]", "residual_g_m3 = 900\n\n"
                          "[[policy]]", 1), "policy[2].residual_g_m3", r"must be below"),
     ("missing required strain key",
-     lambda t: t.replace("mu_max_per_d = 1.4 ", "# no mu "), "strain.mu_max_per_d",
+     lambda t: re.sub(r"(?m)^mu_max_per_d = .*$", "", t), "strain.mu_max_per_d",
      r"missing required key"),
     ("non-integer count",
      lambda t: t.replace("count = 8 ", "count = 8.5 "), "pond.count", r"whole number"),
@@ -99,7 +99,7 @@ BAD_CASES = [
      lambda t: t.replace("[inoculation]", '[inoculation]\nstart_date = "2024-03-01"'),
      "inoculation.start_date", r"outside the study year"),
     ("duplicate policy names",
-     lambda t: t.replace('name = "every 4 d to 300"', 'name = "daily 20 %"'),
+     lambda t: t.replace('name = "every 3 d to 400"', 'name = "daily 15 %"'),
      "policy.name", r"used twice"),
 ]
 
