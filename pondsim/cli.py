@@ -52,6 +52,17 @@ def _parser() -> argparse.ArgumentParser:
     r.add_argument("--seed", type=int, help="seed of the random streams")
     r.add_argument("--no-plots", action="store_true", help="skip the figures")
 
+    c = sub.add_parser("compare", help="compare harvest policies and plans by season",
+                       description="Run every policy and season plan of the scenario with "
+                       "stochastic crash members; print and write the per-season comparison, "
+                       "the best policy per season under the risk limit, and figures.")
+    c.add_argument("scenario", help="scenario .toml")
+    c.add_argument("--members", type=int, default=None,
+                   help="stochastic members per policy (default: run.members, at least 200)")
+    c.add_argument("--seed", type=int, help="seed of the random streams")
+    c.add_argument("--out", default=None, metavar="DIR",
+                   help="output folder (default: out/<scenario name>-compare)")
+
     k = sub.add_parser("keys", help="print the scenario file reference (Markdown)")
     k.set_defaults()
     return p
@@ -60,7 +71,9 @@ def _parser() -> argparse.ArgumentParser:
 def main(argv: list[str] | None = None) -> int:
     args = _parser().parse_args(argv)
     try:
-        return {"weather": cmd_weather, "run": cmd_run, "keys": cmd_keys}[args.command](args)
+        commands = {"weather": cmd_weather, "run": cmd_run, "compare": cmd_compare,
+                    "keys": cmd_keys}
+        return commands[args.command](args)
     except InputError as err:
         print(f"pondsim: error: {err}", file=sys.stderr)
         return EXIT_INPUT
@@ -141,6 +154,7 @@ def cmd_run(args) -> int:
     from .scenario import load_scenario
     from .simulate import simulate
 
+    _check_members(args.members)
     scenario = load_scenario(args.scenario)
     out = Path(args.out) if args.out else Path("out") / Path(args.scenario).stem
     t0 = time.perf_counter()
@@ -175,6 +189,63 @@ def cmd_run(args) -> int:
 
         written += run_figures(ds, out)
     print("\nwritten: " + ", ".join(str(p) for p in written))
+    print("\n" + CAUTION)
+    return 0
+
+
+def _check_members(n):
+    if n is not None and not 1 <= n <= 1_000_000:
+        raise InputError(f"{n} is out of range; allowed: a whole number in [1, 1000000]",
+                         field="--members")
+
+
+def cmd_compare(args) -> int:
+    from .compare import best_by_season, risk_calendar, season_table
+    from .results import CAUTION, save, write_csv
+    from .scenario import load_scenario
+    from .simulate import crash_model_of, simulate
+
+    _check_members(args.members)
+    scenario = load_scenario(args.scenario)
+    members = args.members or max(scenario.run.members, 200)
+    crash = crash_model_of(scenario)
+    if crash is None:
+        from .crash import CrashModel
+
+        crash = CrashModel()  # for the calendar only; no crashes are drawn
+    out = Path(args.out) if args.out else Path("out") / f"{Path(args.scenario).stem}-compare"
+    t0 = time.perf_counter()
+    ds = simulate(scenario, members=members, seed=args.seed)
+    elapsed = time.perf_counter() - t0
+    table = season_table(ds)
+    limit = scenario.crash.max_season_probability
+    best = best_by_season(table, limit)
+    calendar = risk_calendar(ds, crash)
+    out.mkdir(parents=True, exist_ok=True)
+    written = [save(ds, out / "results.nc"), write_csv(table, out / "comparison.csv"),
+               write_csv(best, out / "best_by_season.csv"),
+               write_csv(calendar, out / "risk_calendar.csv", index=False)]
+    print(f"{scenario.study_name}: {len(ds['policy'])} policies/plans x {members} members, "
+          f"{elapsed:.1f} s\n")
+    view = table[["yield_t_ha", "yield_t_ha_p10", "yield_t_ha_p90", "productivity_g_m2_d",
+                  "harvests", "harvest_volume_m3", "mean_density_g_m3", "expected_crashes",
+                  "p_crash", "days_at_risk", "biomass_lost_g_m2"]].copy()
+    view.columns = ["t/ha", "P10", "P90", "g/m2/d", "harvests", "m3/pond", "mean g/m3",
+                    "E[crashes]", "P(crash)", "risk days", "lost g/m2"]
+    print(view.to_string(float_format=lambda v: f"{v:,.2f}"))
+    print(f"\nbest policy per season (risk limit: P(>= 1 crash) <= {limit:.0%} per season):")
+    for season, r in best.iterrows():
+        flag = "" if r["within_risk_limit"] else "  [no policy within the limit: least risky]"
+        print(f"  {season:>10}: {r['best_policy']}  {r['productivity_g_m2_d']:.1f} g/m2/d, "
+              f"P(crash) {r['p_crash']:.0%}{flag}")
+    if len(calendar):
+        print("\nsteepest falls of K (risk calendar, median member X/K):")
+        print(calendar.to_string(index=False, float_format=lambda v: f"{v:,.2f}"))
+    from .plots import compare_figures
+
+    written += compare_figures(ds, table, crash, out)
+    print("\nwritten: " + ", ".join(str(p) for p in written))
+    print("\nCrash parameters are assumptions unless replaced by the site's own history.")
     print("\n" + CAUTION)
     return 0
 

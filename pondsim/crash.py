@@ -4,13 +4,15 @@ A culture standing near or above its carrying capacity when K falls quickly (a c
 a cloudy spell, the end of summer) is light- or temperature-starved, stressed and open to
 grazers and pathogens. The daily hazard is
 
-    h = h_base + h_stress · s_over · s_drop            [d-1]
+    h = h_base + h_stress · (1 − exp(−s_over · s_drop))   [d-1]
     s_over = max(0, X/K̄ − ρ_onset) / (1 − ρ_onset)       overshoot above the onset ratio
     s_drop = max(0, ln K̄(t − w) − ln K̄(t)) / d_scale     fall of ln K̄ over w days
 
 where K̄ is the trailing w-day mean of the daily carrying capacity (so that one dull day
 among bright ones is not read as a collapse), and the probability of a crash on a day is
-1 − exp(−h). ``h_base`` stands for the
+1 − exp(−h). The stress term rises linearly with the product of overshoot and K-drop
+while both are small and saturates at ``h_stress``, so that no weather makes a crash
+certain within a day. ``h_base`` stands for the
 contamination and grazer crashes every operator sees regardless of weather. All
 parameters are scenario keys; the defaults are ASSUMPTIONS (common practice of this
 project, not measurements) to be replaced by a site's own crash history.
@@ -47,7 +49,7 @@ class CrashModel:
     ----------
     base_hazard_per_d : float [d-1]
     stress_hazard_per_d : float [d-1]
-        Hazard added at full overshoot stress (s_over = 1) and one unit of K drop.
+        Largest hazard the weather stress can add (reached when s_over · s_drop >> 1).
     overshoot_onset : float [-]
         X/K above which overshoot counts.
     window_days : int [d]
@@ -58,8 +60,8 @@ class CrashModel:
         Share of the standing biomass lost in a crash (the rest is salvaged as harvest).
     """
 
-    base_hazard_per_d: float = 0.002
-    stress_hazard_per_d: float = 0.5
+    base_hazard_per_d: float = 0.0005
+    stress_hazard_per_d: float = 0.25
     overshoot_onset: float = 0.8
     window_days: int = 3
     drop_scale: float = 0.2
@@ -86,7 +88,7 @@ class CrashModel:
         s_over = np.maximum(np.asarray(x) / np.maximum(k_smooth, 1.0)
                             - self.overshoot_onset, 0.0) / (1.0 - self.overshoot_onset)
         s_drop = np.maximum(drop, 0.0) / self.drop_scale
-        return self.base_hazard_per_d + self.stress_hazard_per_d * s_over * s_drop
+        return self.base_hazard_per_d - self.stress_hazard_per_d * np.expm1(-s_over * s_drop)
 
     @staticmethod
     def streams(seed: int | None, stream_of_member) -> np.ndarray:

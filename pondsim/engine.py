@@ -100,6 +100,9 @@ class Operation:
     max_fraction : float [-]
         Daily harvest capacity as a share of pond volume.
     min_density_g_m3 : float [g m-3]
+    sample_hour : int, optional [h]
+        Also record the density at the start of this local hour each day (after that
+        hour's harvest), as a pilot pond's daily sample would see it.
     """
 
     start_day: int = 0
@@ -109,6 +112,7 @@ class Operation:
     recovery_efficiency: float = 1.0
     max_fraction: float = 1.0
     min_density_g_m3: float = 0.0
+    sample_hour: int | None = None
 
 
 @dataclass
@@ -119,7 +123,8 @@ class Daily:
     (before recovery losses, including what a crash salvages); harvest_fraction [-] of
     the volume; growth_rate [d-1] mean net specific rate; lost [g m-3] biomass lost to
     crashes; crashed (bool); hazard [d-1] crash hazard at the end of the day; status
-    (0 growing, 1 restarting after a crash, 2 not yet inoculated). ``ledger`` holds the
+    (0 growing, 1 restarting after a crash, 2 not yet inoculated); sampled [g m-3]
+    density at ``Operation.sample_hour`` (None unless asked). ``ledger`` holds the
     per-member totals [g m-3]: inoculated, grown, respired, removed, lost, final.
     """
 
@@ -132,6 +137,7 @@ class Daily:
     hazard: np.ndarray
     status: np.ndarray
     ledger: dict
+    sampled: np.ndarray | None = None
 
 
 def _member_view(a: np.ndarray, set_of_member: np.ndarray | None):
@@ -315,6 +321,7 @@ def integrate(drivers: Drivers, rules: HarvestRules, operation: Operation, *,
         lost=np.zeros((n, n_days)), crashed=np.zeros((n, n_days), dtype=bool),
         hazard=np.zeros((n, n_days), dtype=np.float32),
         status=np.zeros((n, n_days), dtype=np.int8), ledger=totals,
+        sampled=None if op.sample_hour is None else np.zeros((n, n_days)),
     )
     if crash is not None:
         smooth = crash.smoothed(drivers.capacity)
@@ -348,6 +355,8 @@ def integrate(drivers: Drivers, rules: HarvestRules, operation: Operation, *,
                 out.removed[:, day] = taken
                 out.harvest_fraction[:, day] = frac
                 since = np.where(scheduled, 0, since)
+            if hod == op.sample_hour:
+                out.sampled[:, day] = x
             if dark[hour]:
                 m = maint(hour)
                 decay = np.exp(-m * STEP_D)

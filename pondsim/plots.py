@@ -13,7 +13,7 @@ import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 import pandas as pd  # noqa: E402
 
-from .results import CAUTION, _atomic_write  # noqa: E402
+from .results import CAUTION, G_M2_TO_T_HA, _atomic_write  # noqa: E402
 
 STYLES = ["-", "--", "-.", ":"]
 COLORS = ["#1b4f72", "#b9770e", "#1e8449", "#7d3c98", "#a93226", "#5d6d7e"]
@@ -168,3 +168,89 @@ def run_figures(ds, out_dir) -> list[Path]:
 
 
 __all__ = ["weather_figure", "run_figures", "CAUTION"]
+
+
+def compare_figures(ds, table, crash, out_dir) -> list[Path]:
+    """Figures of `pondsim compare`: trajectories with K and harvests, seasonal yields,
+    and the crash-risk calendar."""
+    out_dir = Path(out_dir)
+    dates = pd.to_datetime(ds["date"].values)
+    pols = list(ds["policy"].values)
+    written = []
+    k_smooth = crash.smoothed(ds["carrying_capacity"].values)
+
+    fig, axes = plt.subplots(len(pols), 1, figsize=(11, 2.4 * len(pols) + 1), sharex=True,
+                             constrained_layout=True, squeeze=False)
+    for i, (ax, p) in enumerate(zip(axes[:, 0], pols, strict=True)):
+        dens = ds["density"].sel(policy=p)
+        ax.plot(dates, ds["carrying_capacity"], color="0.6", lw=0.8, label="K (daily)")
+        ax.plot(dates, k_smooth, color="k", lw=1.2, label=f"K, {crash.window_days}-day mean")
+        ax.fill_between(dates, dens.quantile(0.1, "member"), dens.quantile(0.9, "member"),
+                        color=COLORS[i % len(COLORS)], alpha=0.25, label="P10–P90 members")
+        ax.plot(dates, dens.median("member"), color=COLORS[i % len(COLORS)], lw=1.2,
+                label="median member")
+        first = dens.isel(member=0)
+        harvest_days = (ds["harvest_fraction"].sel(policy=p).isel(member=0) > 0).values
+        ax.plot(dates[harvest_days], first.values[harvest_days], "v", ms=3, color="k",
+                label="harvest (member 0)")
+        crash_days = (ds["crashed"].sel(policy=p).isel(member=0) > 0).values
+        if crash_days.any():
+            ax.plot(dates[crash_days], np.zeros(crash_days.sum()), "x", ms=7, color="#a93226",
+                    mew=2, label="crash (member 0)")
+        ax.set_ylabel("density [g m$^{-3}$]")
+        ax.set_title(str(p), loc="left", fontsize=10)
+        ax.grid(alpha=0.3)
+        if i == 0:
+            ax.legend(fontsize=7, ncol=3, loc="upper right")
+    fig.suptitle(f"{ds.attrs['site']}: density by policy with carrying capacity")
+    written.append(_save(fig, out_dir / "trajectories.png"))
+
+    fig, ax = plt.subplots(figsize=(11, 5), constrained_layout=True)
+    seasons = list(pd.unique(table.index.get_level_values("season")))
+    width = 0.8 / max(len(pols), 1)
+    x = np.arange(len(seasons))
+    hatches = ["", "//", "..", "xx", "\\\\", "++"]
+    for i, p in enumerate(pols):
+        sub = table.xs(p, level="policy").reindex(seasons)
+        y = sub["productivity_g_m2_d"].to_numpy()
+        per_day = 1.0 / (G_M2_TO_T_HA * sub["days"].to_numpy())  # t ha-1 -> g m-2 d-1
+        lo = sub["yield_t_ha_p10"].to_numpy() * per_day
+        hi = sub["yield_t_ha_p90"].to_numpy() * per_day
+        ax.bar(x - 0.4 + width * (i + 0.5), y, width, color=COLORS[i % len(COLORS)],
+               hatch=hatches[i % len(hatches)], edgecolor="white", label=str(p),
+               yerr=np.vstack([y - lo, hi - y]).clip(0), capsize=3)
+    ax.set_xticks(x, seasons)
+    ax.set_ylabel("harvested productivity [g m$^{-2}$ d$^{-1}$] (bars: P10–P90 members)")
+    ax.set_title("Seasonal yield by policy")
+    ax.legend(fontsize=8)
+    ax.grid(axis="y", alpha=0.3)
+    written.append(_save(fig, out_dir / "seasonal_yield.png"))
+
+    fig, (ax1, ax2) = plt.subplots(2, 1, figsize=(11, 6.5), sharex=True,
+                                   constrained_layout=True,
+                                   gridspec_kw={"height_ratios": [1, 1.2]})
+    drop = crash.drop_index(k_smooth)
+    ax1.plot(dates, 100 * (1 - np.exp(-np.maximum(drop, 0))), color="k", lw=1)
+    ax1.set_ylabel(f"fall of K over {crash.window_days} d [%]")
+    ax1.set_title("Crash-risk calendar: where K falls and how likely a crash is")
+    ax1.grid(alpha=0.3)
+    prob = -np.expm1(-ds["hazard"].astype(float)).mean("member")  # daily crash probability
+    img = ax2.imshow(100 * prob.values, aspect="auto", cmap="Greys", interpolation="nearest",
+                     extent=[mdates_num(dates[0]), mdates_num(dates[-1]), len(pols) - 0.5,
+                             -0.5])
+    ax2.set_yticks(range(len(pols)), pols)
+    ax2.xaxis_date()
+    import matplotlib.dates as mdates
+
+    ax2.xaxis.set_major_locator(mdates.MonthLocator())
+    ax2.xaxis.set_major_formatter(mdates.DateFormatter("%b"))
+    cbar = fig.colorbar(img, ax=ax2, pad=0.01)
+    cbar.set_label("daily crash probability [%] (member mean)")
+    written.append(_save(fig, out_dir / "risk_calendar.png"))
+    return written
+
+
+def mdates_num(ts):
+    import matplotlib.dates as mdates
+
+    return mdates.date2num(pd.Timestamp(ts).to_pydatetime())

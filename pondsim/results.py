@@ -119,7 +119,14 @@ def build_dataset(daily, drivers, hourly: pd.DataFrame, scenario, meta: dict, *,
         "source": f"pondsim {_version()}",
         "weather_notes": "; ".join(meta.get("notes", [])),
         "photons_per_joule_umol": float(hourly.attrs.get("photons_per_joule_umol", np.nan)),
+        "recovery_efficiency": eff,
     }
+    crash = scenario.crash
+    if crash is not None:
+        ds.attrs["crash_enabled"] = int(crash.enabled)
+        for name in ("base_hazard_per_d", "stress_hazard_per_d", "overshoot_onset",
+                     "window_days", "drop_scale", "loss_fraction", "max_season_probability"):
+            ds.attrs[f"crash_{name}"] = getattr(crash, name)
     return ds
 
 
@@ -190,13 +197,14 @@ def save(result: xr.Dataset, path: str | Path) -> Path:
         tmp, engine="h5netcdf", encoding=encoding))
 
 
-def write_csv(table: pd.DataFrame, path: str | Path, *, caution: bool = True) -> Path:
+def write_csv(table: pd.DataFrame, path: str | Path, *, caution: bool = True,
+              index: bool = True) -> Path:
     """Write a table to CSV atomically, with the caution as a leading comment line."""
     def write(tmp):
         with open(tmp, "w", encoding="utf-8", newline="") as fh:
             if caution:
                 fh.write(f"# {CAUTION}\n")
-            table.to_csv(fh, float_format="%.6g")
+            table.to_csv(fh, float_format="%.6g", index=index)
 
     return _atomic_write(Path(path), write)
 

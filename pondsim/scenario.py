@@ -157,11 +157,12 @@ SCHEMA: dict[str, dict[str, Key]] = {
     },
     "crash": {
         "enabled": Key("bool", True, "Draw culture crashes (false: deterministic runs)."),
-        "base_hazard_per_d": Key("float", 0.002, "Daily crash hazard whatever the weather "
-                                 "(contamination, grazers). ASSUMPTION: replace with the "
-                                 "site's crash history.", "d-1", 0.0, 1.0),
-        "stress_hazard_per_d": Key("float", 0.5, "Hazard added at full overshoot and one "
-                                   "unit of K drop. ASSUMPTION.", "d-1", 0.0, 50.0),
+        "base_hazard_per_d": Key("float", 0.0005, "Daily crash hazard whatever the weather "
+                                 "(contamination, grazers); 0.0005 is 4.4 % per 90-day "
+                                 "season. ASSUMPTION: replace with the site's crash "
+                                 "history.", "d-1", 0.0, 1.0),
+        "stress_hazard_per_d": Key("float", 0.25, "Largest hazard that overshoot while K "
+                                   "falls can add. ASSUMPTION.", "d-1", 0.0, 50.0),
         "overshoot_onset": Key("float", 0.8, "Density/K ratio above which overshoot "
                                "stress counts. ASSUMPTION.", "1", 0.0, 0.99),
         "window_days": Key("int", 3, "Window of the K-drop index ln K(t-w) - ln K(t).", "d",

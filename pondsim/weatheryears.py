@@ -1,0 +1,658 @@
+"""Weather years for P50/P90 studies: split real multi-year records, or resample one
+typical year (or several real years) into many synthetic years.
+
+Two ways to get the weather members of an annual-yield distribution:
+
+* :func:`split_years` — a forcing table spanning several whole calendar years is cut into
+  its years, each used as it is.
+* :func:`generate_years` / :func:`stack_years` — a seeded stochastic generator that
+  builds N synthetic years from one typical year (or from several real years pooled) by
+  resampling whole source days, so that each day keeps its hourly shape and the joint
+  behaviour of irradiance, temperature, wind and humidity, while a Markov chain of daily
+  clearness classes keeps cloudy spells as long as they are in the source.
+
+The method (see :func:`stack_years`, Notes) is a conditional day bootstrap: the
+occurrence process of Richardson (1981) — a first-order Markov chain fitted per calendar
+month — applied to classes of the daily clearness index, as Aguiar, Collares-Pereira &
+Conde (1988) do with their Markov transition matrices of daily clearness; the values of a
+day are then a whole historical day resampled from a date window, as in the
+nearest-neighbour weather resampling of Rajagopalan & Lall (1999), here conditioned on the
+simulated class instead of on the previous day's state vector.
+
+References
+----------
+Richardson (1981), Stochastic simulation of daily precipitation, temperature, and solar
+radiation, Water Resour. Res. 17:182–190, doi:10.1029/WR017i001p00182.
+
+Aguiar, Collares-Pereira & Conde (1988), Simple procedure for generating sequences of
+daily radiation values using a library of Markov transition matrices, Solar Energy
+40:269–279, doi:10.1016/0038-092X(88)90049-7.
+
+Rajagopalan & Lall (1999), A k-nearest-neighbor simulator for daily precipitation and
+other weather variables, Water Resour. Res. 35:3089–3101, doi:10.1029/1999WR900028.
+"""
+
+from __future__ import annotations
+
+import calendar
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from pondsim.errors import InputError
+from pondsim.weather import (
+    DERIVED_COLUMNS,
+    clearsky_ghi_midhour,
+    saturation_vapour_pressure,
+    solar_position_midhour,
+)
+
+__all__ = [
+    "IRRADIANCE_COLUMNS",
+    "WINDOW_DAYS",
+    "PRIOR_COUNT",
+    "BLEND_HOURS",
+    "SyntheticYears",
+    "split_years",
+    "daily_clearness",
+    "stack_years",
+    "generate_years",
+]
+
+#: Columns multiplied by the ratio of clear-sky daily totals (target / source day).
+IRRADIANCE_COLUMNS = ("ghi", "dni", "dhi")
+#: Default half-width of the date window [d]: a target date draws from source days of the
+#: same calendar month at most this many days away (chosen for pondsim: wide enough for
+#: ~10 candidates per class in one typical year, narrow enough that the noon solar zenith
+#: of the source day is within ~6 deg of the target's even at the equinoxes).
+WINDOW_DAYS = 15
+#: Pseudo-count added to every cell of a month's class transition count matrix before
+#: normalising the rows (a symmetric Dirichlet prior; chosen: 0.5 is Jeffreys' prior,
+#: small against the ~3 transitions per cell of one month of data with three classes).
+PRIOR_COUNT = 0.5
+#: Default number of hours after midnight over which air temperature is blended to
+#: remove the jump between two resampled days (0 switches blending off).
+BLEND_HOURS = 3
+
+_HOURS_PER_DAY = 24
+
+
+# --------------------------------------------------------------------------- splitting
+def _check_table(forcing, what="forcing"):
+    if not isinstance(forcing, pd.DataFrame):
+        raise InputError(f"{what} must be a pandas DataFrame (a forcing table), got "
+                         f"{type(forcing).__name__}", field=what)
+    idx = forcing.index
+    if not isinstance(idx, pd.DatetimeIndex) or idx.tz is None:
+        raise InputError("the forcing index must be a tz-aware DatetimeIndex in local "
+                         "standard time (as read_weather returns)", field="time")
+    missing = [c for c in ("ghi", "ghi_clear", "temp_air") if c not in forcing.columns]
+    if missing:
+        raise InputError(f"forcing table lacks column {missing[0]} (read it with "
+                         "pondsim.weather.read_weather)", field=missing[0])
+    if len(idx) and not (idx.is_monotonic_increasing and idx.is_unique):
+        raise InputError("the forcing index must be unique and increasing", field="time")
+
+
+def _is_whole_year(idx: pd.DatetimeIndex, year: int) -> bool:
+    n = (366 if calendar.isleap(year) else 365) * _HOURS_PER_DAY
+    if len(idx) != n:
+        return False
+    full = pd.date_range(f"{year}-01-01", periods=n, freq="h", tz=idx.tz)
+    return bool(idx.equals(full))
+
+
+def split_years(forcing: pd.DataFrame) -> list[pd.DataFrame]:
+    """Cut a forcing table spanning whole calendar years into one table per year.
+
+    Parameters
+    ----------
+    forcing : pandas.DataFrame
+        Hourly forcing table (:func:`pondsim.weather.read_weather`): tz-aware hour-start
+        index in local standard time.
+
+    Returns
+    -------
+    list of pandas.DataFrame
+        One table per calendar year, in order, each with exactly the 8760 (8784 in a leap
+        year) hours 00:00 Jan 1 to 23:00 Dec 31. The tables are copies.
+
+    Raises
+    ------
+    InputError
+        Not a forcing table, or some calendar year is not complete; the message names
+        every incomplete year and how many of its hours are present.
+    """
+    _check_table(forcing)
+    idx = forcing.index
+    if len(idx) == 0:
+        raise InputError("the forcing table is empty", field="time")
+    years = np.asarray(idx.year)
+    out, bad = [], []
+    for y in np.unique(years):
+        sel = years == y
+        if _is_whole_year(idx[sel], int(y)):
+            out.append(forcing.loc[sel].copy())
+        else:
+            n = (366 if calendar.isleap(int(y)) else 365) * _HOURS_PER_DAY
+            bad.append(f"{int(y)} ({int(sel.sum())} of {n} hours)")
+    if bad:
+        raise InputError("incomplete calendar year(s): " + ", ".join(bad) + "; weather "
+                         "years must be whole years 00:00 Jan 1 to 23:00 Dec 31 local "
+                         "standard time (trim the table to whole years)", field="time")
+    return out
+
+
+# --------------------------------------------------------------------------- source days
+def daily_clearness(ghi, ghi_clear):
+    """Daily clearness: daily GHI over daily clear-sky GHI [1].
+
+    Parameters
+    ----------
+    ghi, ghi_clear : array-like [W m-2], shape (..., n_days * 24)
+        Hourly means of whole days (hour-start labels from 00:00).
+
+    Returns
+    -------
+    ndarray, shape (..., n_days)
+        ``sum(ghi) / sum(ghi_clear)`` per day; 0 on a day without clear-sky light
+        (polar night).
+    """
+    g = np.asarray(ghi, dtype=float)
+    c = np.asarray(ghi_clear, dtype=float)
+    gd = g.reshape(*g.shape[:-1], -1, _HOURS_PER_DAY).sum(axis=-1)
+    cd = c.reshape(*c.shape[:-1], -1, _HOURS_PER_DAY).sum(axis=-1)
+    return np.where(cd > 0, gd / np.where(cd > 0, cd, 1.0), 0.0)
+
+
+@dataclass(frozen=True)
+class _Library:
+    """Every source day, flattened over source years."""
+
+    columns: tuple            # column names, in the source's order
+    values: np.ndarray        # (n_columns, n_src_days, 24)
+    month: np.ndarray         # (n_src_days,) 1..12
+    dom: np.ndarray           # (n_src_days,) day of month
+    h0: np.ndarray            # (n_src_days,) clear-sky daily total [Wh m-2]
+    k: np.ndarray             # (n_src_days,) daily clearness [1]
+    prev: np.ndarray          # (n_src_days,) library row of the day before (cyclic/year)
+    start: pd.DatetimeIndex   # (n_src_days,) 00:00 of each source day
+    ref_year: pd.DataFrame    # first source year, for the target's geometry
+
+
+def _library(years: Sequence[pd.DataFrame]) -> _Library:
+    columns = tuple(years[0].columns)
+    for y in years[1:]:
+        if tuple(y.columns) != columns:
+            raise InputError("all source years must have the same columns; got "
+                             f"{list(columns)} and {list(y.columns)}", field="columns")
+    vals, month, dom, prev, start = [], [], [], [], []
+    offset = 0
+    for y in years:
+        n_days = len(y) // _HOURS_PER_DAY
+        v = y.to_numpy(dtype=float).T.reshape(len(columns), n_days, _HOURS_PER_DAY)
+        if not np.isfinite(v).all():
+            col = columns[int(np.flatnonzero(~np.isfinite(v).all(axis=(1, 2)))[0])]
+            raise InputError("source forcing has missing (NaN) values", field=col)
+        vals.append(v)
+        days = y.index[::_HOURS_PER_DAY]
+        month.append(np.asarray(days.month))
+        dom.append(np.asarray(days.day))
+        start.append(days)
+        # the day before Jan 1 is Dec 31 of the same source year (a typical year is
+        # treated as cyclic; for real years this one join is artificial)
+        prev.append(offset + (np.arange(n_days) - 1) % n_days)
+        offset += n_days
+    values = np.concatenate(vals, axis=1)
+    ci = {c: i for i, c in enumerate(columns)}
+    h0 = values[ci["ghi_clear"]].sum(axis=-1)
+    k = daily_clearness(values[ci["ghi"]].ravel(), values[ci["ghi_clear"]].ravel())
+    return _Library(columns, values, np.concatenate(month), np.concatenate(dom),
+                    h0, k, np.concatenate(prev), start[0].append(start[1:]), years[0])
+
+
+def _class_edges(lib: _Library, n_classes: int) -> np.ndarray:
+    """Interior class edges per month, quantiles of the month's daily clearness."""
+    q = np.arange(1, n_classes) / n_classes
+    return np.stack([np.quantile(lib.k[lib.month == m], q) for m in range(1, 13)])
+
+
+def _classify(k, month, edges):
+    """Class 0 (least clear) .. n_classes-1 (clearest) of each day."""
+    e = edges[np.asarray(month) - 1]                       # (n, n_classes-1)
+    return (np.asarray(k)[:, None] > e).sum(axis=1)
+
+
+def _transitions(cls, prev, month, n_classes, prior, *, n_iter=200):
+    """Transition matrices per month (of the day transitioned FROM), shape (12, C, C).
+
+    ``P[m, i, j]`` = probability that a day of class ``j`` follows a day of class ``i``
+    of month ``m + 1``. Counts of consecutive source days plus ``prior`` per cell are
+    balanced (iterative proportional fitting of rows and columns) so that both margins
+    equal the month's observed class frequencies ``f`` before the rows are normalised;
+    then ``f P = f``: the chain's stationary class mix is the source month's, which keeps
+    the monthly mean irradiance unbiased, while the odds of staying in a class remain
+    those counted.
+    """
+    counts = np.full((12, n_classes, n_classes), float(prior))
+    today = np.arange(len(cls))
+    # only genuine consecutive pairs: skip the cyclic Dec 31 -> Jan 1 join of each year
+    real = today - prev == 1
+    np.add.at(counts, (month[prev[real]] - 1, cls[prev[real]], cls[today[real]]), 1.0)
+    freq = np.stack([np.bincount(cls[month == m], minlength=n_classes)
+                     for m in range(1, 13)]).astype(float)
+    f = freq / freq.sum(axis=1, keepdims=True)
+    q = counts * (f[:, :, None] > 0) * (f[:, None, :] > 0)
+    for _ in range(n_iter):
+        q = q * _safe_ratio(f, q.sum(axis=2))[:, :, None]
+        q = q * _safe_ratio(f, q.sum(axis=1))[:, None, :]
+    rows = q.sum(axis=2, keepdims=True)
+    # a class absent from a month (ties) never occurs there: give it the month's mix
+    return np.where(rows > 0, q / np.where(rows > 0, rows, 1.0), f[:, None, :]), f
+
+
+def _safe_ratio(a, b):
+    return np.where(b > 0, a / np.where(b > 0, b, 1.0), 0.0)
+
+
+# --------------------------------------------------------------------------- targets
+def _target_index(year: int, tz) -> pd.DatetimeIndex:
+    n = (366 if calendar.isleap(year) else 365) * _HOURS_PER_DAY
+    idx = pd.date_range(f"{year}-01-01", periods=n, freq="h", tz=tz)
+    idx.name = "time"
+    return idx
+
+
+def _target_geometry(index, ref: pd.DataFrame, site):
+    """solar_zenith and ghi_clear of the target hours, shape (2, n_hours).
+
+    Without ``site``: taken from the same calendar day of the first source year, whose
+    sun is that of the target date to within a quarter of a day's declination change;
+    a target Feb 29 with no Feb 29 in the source takes Feb 28 (as read_weather copies
+    Feb 28 into leap years). With ``site``: recomputed for the target hours.
+    """
+    if site is not None:
+        for key in ("latitude", "longitude", "elevation_m"):
+            if key not in site:
+                raise InputError(f"site lacks '{key}' (pass read_weather's meta)",
+                                 field=f"site.{key}")
+        lat, lon, elev = (float(site[k]) for k in ("latitude", "longitude", "elevation_m"))
+        pres = float(np.mean(ref["pressure"])) if "pressure" in ref else None
+        zen = solar_position_midhour(index, lat, lon, elev,
+                                     pressure_pa=pres)["apparent_zenith"].to_numpy()
+        cs = clearsky_ghi_midhour(index, zen, lat, lon, elev, pres)
+        return np.stack([zen, cs])
+    src = ref.index
+    key_src = np.asarray(src.month) * 100 + np.asarray(src.day)
+    key_tgt = np.asarray(index.month) * 100 + np.asarray(index.day)
+    if not np.isin(229, key_src):
+        key_tgt = np.where(key_tgt == 229, 228, key_tgt)
+    # first row of each calendar day in the reference year, then the hour of the day
+    day_keys = key_src[::_HOURS_PER_DAY]
+    row = np.searchsorted(day_keys, key_tgt) * _HOURS_PER_DAY + np.asarray(index.hour)
+    geo = ref[list(DERIVED_COLUMNS)].to_numpy(dtype=float)
+    return geo[row].T
+
+
+def _candidates(t_month, t_dom, lib: _Library, cls, n_classes, window_days):
+    """Padded table of source days per (target day, class) and their counts.
+
+    Candidates of target day t and class c: source days of t's calendar month, at most
+    ``window_days`` days of month from t's, of class c. Where that set is empty, the whole
+    month's days of class c (quantile classes leave none empty).
+    """
+    same_month = lib.month[None, :] == t_month[:, None]                # (n_t, n_src)
+    near = same_month & (np.abs(lib.dom[None, :] - t_dom[:, None]) <= window_days)
+    of_class = cls[None, None, :] == np.arange(n_classes)[None, :, None]
+    pool = near[:, None, :] & of_class                                 # (n_t, C, n_src)
+    empty = ~pool.any(axis=2)
+    pool = np.where(empty[:, :, None], same_month[:, None, :] & of_class, pool)
+    counts = pool.sum(axis=2)
+    if (counts == 0).any():
+        t, c = np.argwhere(counts == 0)[0]
+        raise InputError(f"no source day of clearness class {c} in month {t_month[t]}; "
+                         "use fewer classes", field="n_classes")
+    # stable argsort puts each pool's members first, in library order
+    order = np.argsort(~pool, axis=2, kind="stable")[:, :, : counts.max()]
+    return order, counts
+
+
+def _balance_weights(order, counts, p_class, group, *, n_iter=500, tol=1e-6):
+    """Base weights of the source days so that, over the target calendar, each source
+    day of a (month, class) group is expected to be drawn equally often.
+
+    A date window clipped to the month covers the month's middle days from more target
+    dates than its first and last days; drawing uniformly within the window would favour
+    mid-month days and shift monthly means by the chance weather of the month's edges.
+    Iterative proportional fitting rescales the weights until the expected number of
+    draws of each source day (the target day's class probability ``p_class[t, c]`` times
+    the day's share of the window's weight) equals the mean over its group.
+
+    Parameters
+    ----------
+    order, counts : from :func:`_candidates`
+    p_class : ndarray (n_t, n_classes)
+        Probability of each class on each target day.
+    group : ndarray of int (n_src,)
+        (month, class) group of each source day.
+
+    Returns
+    -------
+    weights : ndarray (n_src,)
+    residual : float
+        Largest relative departure of a day's expected draws from its group mean.
+    """
+    m = order.shape[2]
+    valid = np.arange(m)[None, None, :] < counts[:, :, None]
+    rows = order[valid]
+    n_src = len(group)
+    appear = np.bincount(rows, minlength=n_src) > 0
+    w = np.ones(n_src)
+    target = None
+    residual = np.inf
+    for _ in range(n_iter):
+        wc = np.where(valid, w[order], 0.0)
+        frac = wc / wc.sum(axis=2, keepdims=True)
+        picks = np.bincount(rows, weights=(p_class[:, :, None] * frac)[valid],
+                            minlength=n_src)
+        if target is None:  # group totals do not change with the weights
+            total = np.bincount(group, weights=picks)
+            n_days = np.bincount(group, weights=appear.astype(float))
+            target = total[group] / np.where(n_days[group] > 0, n_days[group], 1.0)
+        ratio = np.where(appear & (picks > 0), target / np.where(picks > 0, picks, 1.0), 1.0)
+        residual = float(np.max(np.abs(ratio - 1.0)))
+        if residual < tol:
+            break
+        w = w * ratio
+    return w, residual
+
+
+def _draw_days(rng, cls, order, counts, base_w, feature, prev, nearest):
+    """Source day of every synthetic day, shape (n_years, n_t), one day at a time.
+
+    Day ``t`` of class ``c`` draws from the (t, c) pool with probability proportional to
+    ``base_w`` (:func:`_balance_weights`). With ``nearest``, the draw is further
+    conditioned on yesterday, in the manner of Rajagopalan & Lall (1999): pool days are
+    ranked by the distance between THEIR source predecessor's feature vector and the
+    synthetic yesterday's, and the ``k = ceil(sqrt(pool size))`` nearest get the kernel
+    weight ``1/rank`` of Lall & Sharma (1996), the others none.
+    """
+    n_years, n_t = cls.shape
+    m = order.shape[2]
+    u = rng.random((n_years, n_t))
+    src = np.empty((n_years, n_t), dtype=np.int64)
+    slots = np.arange(m)[None, :]
+    rows = np.arange(n_years)
+    for t in range(n_t):  # vectorised over years; one step per day
+        cand = order[t, cls[:, t]]                                  # (N, M)
+        n = counts[t, cls[:, t]]                                    # (N,)
+        valid = slots < n[:, None]
+        w = np.where(valid, base_w[cand], 0.0)
+        if nearest and t > 0:
+            diff = feature[prev[cand]] - feature[src[:, t - 1]][:, None, :]
+            d2 = np.where(valid, (diff ** 2).sum(axis=2), np.inf)
+            rank = np.argsort(np.argsort(d2, axis=1, kind="stable"), axis=1, kind="stable")
+            k = np.ceil(np.sqrt(n))[:, None]
+            w = w * np.where(rank < k, 1.0 / (rank + 1.0), 0.0)
+        cw = np.cumsum(w, axis=1)
+        j = (u[:, t, None] * cw[:, -1:] >= cw).sum(axis=1)
+        src[:, t] = cand[rows, np.minimum(j, n - 1)]
+    return src
+
+
+def _month_z(x, month):
+    """Standard score of each day's value within its calendar month of the source."""
+    z = np.zeros_like(x, dtype=float)
+    for mm in range(1, 13):
+        sel = month == mm
+        sd = x[sel].std()
+        z[sel] = (x[sel] - x[sel].mean()) / (sd if sd > 0 else 1.0)
+    return z
+
+
+# --------------------------------------------------------------------------- generator
+@dataclass(frozen=True)
+class SyntheticYears:
+    """N synthetic weather years on one target calendar, as arrays.
+
+    Attributes
+    ----------
+    index : pandas.DatetimeIndex
+        The target year's hours (hour-start labels, the source's fixed UTC offset).
+    data : dict of str -> ndarray, shape (n_years, n_hours)
+        Every column of the forcing table, in the source's units.
+    columns : tuple of str
+        Column order of the source table.
+    source_day : ndarray of int, shape (n_years, n_days)
+        Start (00:00) of the source day each synthetic day was copied from, as
+        ``datetime64`` values of the source index (local standard time, naive).
+    irradiance_scale : ndarray, shape (n_years, n_days)
+        Factor applied to ``ghi``, ``dni``, ``dhi`` of the source day [1].
+    day_class : ndarray of int, shape (n_years, n_days)
+        Simulated clearness class, 0 (least clear) .. n_classes-1 (clearest).
+    seed : int
+    """
+
+    index: pd.DatetimeIndex
+    data: dict
+    columns: tuple
+    source_day: np.ndarray
+    irradiance_scale: np.ndarray
+    day_class: np.ndarray
+    seed: int
+
+    @property
+    def n_years(self) -> int:
+        return self.day_class.shape[0]
+
+    def frame(self, i: int) -> pd.DataFrame:
+        """Synthetic year ``i`` as a forcing table."""
+        df = pd.DataFrame({c: self.data[c][i] for c in self.columns}, index=self.index)
+        df.index.name = "time"
+        return df
+
+    def frames(self) -> list[pd.DataFrame]:
+        """All synthetic years as forcing tables."""
+        return [self.frame(i) for i in range(self.n_years)]
+
+
+def _source_years(forcing) -> list[pd.DataFrame]:
+    if isinstance(forcing, pd.DataFrame):
+        return split_years(forcing)
+    if isinstance(forcing, Sequence) and len(forcing) > 0:
+        out = []
+        for f in forcing:
+            out.extend(split_years(f))
+        return out
+    raise InputError("forcing must be a forcing table or a non-empty list of them",
+                     field="forcing")
+
+
+def _simulate_classes(rng, p_trans, month_of_day, init_prob, n_years):
+    """First-order Markov chain of classes, all years side by side, shape (n_years, n_t).
+
+    The transition out of day ``t`` uses the matrix of day ``t``'s month; the first day's
+    class is drawn from ``init_prob``.
+    """
+    n_t = len(month_of_day)
+    u = rng.random((n_years, n_t))
+    cum = np.cumsum(p_trans, axis=2)                      # (12, C, C)
+    cls = np.empty((n_years, n_t), dtype=np.int64)
+    cls[:, 0] = (u[:, 0, None] > np.cumsum(init_prob)[None, :-1]).sum(axis=1)
+    for t in range(1, n_t):  # 365 vectorised steps over all years
+        rows = cum[month_of_day[t - 1] - 1][cls[:, t - 1]]   # (n_years, C)
+        cls[:, t] = (u[:, t, None] > rows[:, :-1]).sum(axis=1)
+    return cls
+
+
+def _blend_temperature(temp, rh, lib_temp_prev_last, hours):
+    """Blend the first ``hours`` of each day so the midnight step is the source day's own.
+
+    ``temp`` (n_years, n_days, 24) of the resampled days; ``lib_temp_prev_last``
+    (n_years, n_days) the last-hour temperature of each chosen source day's own previous
+    day. At hour ``j < hours`` the temperature is shifted by ``(1 - j/hours)`` times the
+    difference between yesterday's synthetic last hour and the source's; relative
+    humidity is recomputed at the hour's unchanged vapour pressure (FAO-56 eq. 11).
+    """
+    if hours <= 0:
+        return temp, rh
+    prev_last = np.concatenate([temp[:, :1, 0] * np.nan, temp[:, :-1, -1]], axis=1)
+    shift = np.nan_to_num(prev_last - lib_temp_prev_last)    # first day: no shift
+    w = np.clip(1.0 - np.arange(_HOURS_PER_DAY) / hours, 0.0, None)
+    new_t = temp + shift[:, :, None] * w[None, None, :]
+    e = rh * saturation_vapour_pressure(temp)
+    new_rh = np.minimum(100.0, e / saturation_vapour_pressure(new_t))
+    return new_t, new_rh
+
+
+def stack_years(forcing, n_years: int, *, seed: int, n_classes: int = 3, year=None,
+                window_days: int = WINDOW_DAYS, blend_hours: int = BLEND_HOURS,
+                prior_count: float = PRIOR_COUNT, nearest_neighbours: bool = True,
+                site: Mapping | None = None) -> SyntheticYears:
+    """Synthetic weather years as arrays ``(n_years, n_hours)`` per column.
+
+    Parameters
+    ----------
+    forcing : pandas.DataFrame or list of DataFrame
+        Source forcing (:func:`pondsim.weather.read_weather`): one typical year, a table
+        of several whole calendar years, or a list of such tables; all source years are
+        pooled (see :func:`split_years`).
+    n_years : int
+        Number of synthetic years (>= 1).
+    seed : int
+        Seed of the PCG64 generator (:func:`numpy.random.default_rng`); the same seed and
+        inputs give identical years.
+    n_classes : int
+        Number of daily clearness classes (2..6), edges at the quantiles ``i/n_classes``
+        of each calendar month's source days (terciles for 3).
+    year : int, optional
+        Calendar year of the output (default: the first source year). A 365-day source
+        asked for a leap year draws Feb 29 from the Feb 14–28 source days.
+    window_days : int [d]
+        Half-width of the date window, within the calendar month (:data:`WINDOW_DAYS`).
+    blend_hours : int [h]
+        Hours after midnight over which air temperature is blended (:data:`BLEND_HOURS`);
+        0 keeps every hour exactly as in the source day.
+    prior_count : float
+        Pseudo-count per transition cell (:data:`PRIOR_COUNT`).
+    site : mapping, optional
+        ``latitude``, ``longitude``, ``elevation_m`` (e.g. read_weather's meta): recompute
+        ``solar_zenith`` and ``ghi_clear`` for the target year instead of taking them from
+        the source's same calendar day.
+
+    Returns
+    -------
+    SyntheticYears
+
+    Notes
+    -----
+    1. Daily clearness of every source day, ``K = sum(ghi) / sum(ghi_clear)``
+       (:func:`daily_clearness`), is put in one of ``n_classes`` classes by the
+       quantiles of its calendar month (so classes mean "clearer than usual for the
+       month", not fixed sky states).
+    2. Per month, the class transition matrix ``P[i, j]`` is estimated from consecutive
+       source days (the month of the earlier day), each cell plus ``prior_count``, rows
+       normalised — Richardson's (1981) first-order occurrence chain with monthly
+       parameters, on clearness classes as in Aguiar, Collares-Pereira & Conde (1988).
+    3. Each synthetic year's class sequence is simulated from those matrices; the first
+       day's class is drawn from the frequencies of the source's January days.
+    4. Synthetic day ``t`` of class ``c`` copies, with equal probability, one source day
+       of class ``c`` from the same calendar month within ``window_days`` of ``t``'s day
+       of month (whole month if none) — a day bootstrap in the manner of Rajagopalan &
+       Lall (1999). All columns of the day are copied together, hour by hour, so the
+       joint behaviour of irradiance, temperature, wind and humidity within the day is
+       that of a real day.
+    5. ``solar_zenith`` and ``ghi_clear`` are those of the TARGET date (see ``site``);
+       ``ghi``, ``dni`` and ``dhi`` of the source day are multiplied by
+       ``H0_target / H0_source``, the ratio of clear-sky daily totals, so the day keeps
+       its clearness and the seasonal cycle is not blurred by the window. The hourly
+       shape is not moved: near sunrise and sunset a copied hour may carry a little
+       light where the target sun is just below the horizon (at most the change in day
+       length over ``window_days``); the light stage treats zenith >= 90 deg as night.
+    6. With ``blend_hours > 0`` the first hours of each day are shifted towards
+       continuity with yesterday (:func:`_blend_temperature`), keeping the midnight step
+       of the chosen source day; RH follows at constant vapour pressure. Sky infrared and
+       other columns are not blended.
+
+    Each synthetic year is drawn independently (no carry-over from the previous year).
+    """
+    n_years = int(n_years)
+    if n_years < 1:
+        raise InputError(f"n_years must be at least 1, got {n_years}", field="n_years")
+    if not 2 <= int(n_classes) <= 6:
+        raise InputError(f"n_classes must be 2..6, got {n_classes}", field="n_classes")
+    if int(window_days) < 0:
+        raise InputError("window_days must be >= 0", field="window_days")
+    if int(blend_hours) < 0 or int(blend_hours) > 12:
+        raise InputError("blend_hours must be 0..12", field="blend_hours")
+    if not float(prior_count) > 0:
+        raise InputError("prior_count must be > 0", field="prior_count")
+    n_classes = int(n_classes)
+    years = _source_years(forcing)
+    for y in years:
+        _check_table(y)
+    lib = _library(years)
+    ci = {c: i for i, c in enumerate(lib.columns)}
+    missing = [c for c in DERIVED_COLUMNS + IRRADIANCE_COLUMNS if c not in ci]
+    if missing:
+        raise InputError(f"forcing table lacks column {missing[0]}", field=missing[0])
+    rng = np.random.default_rng(np.random.PCG64(seed))
+
+    edges = _class_edges(lib, n_classes)
+    cls_src = _classify(lib.k, lib.month, edges)
+    p_trans, freq = _transitions(cls_src, lib.prev, lib.month, n_classes, prior_count)
+
+    target_year = int(years[0].index[0].year) if year is None else int(year)
+    index = _target_index(target_year, years[0].index.tz)
+    days = index[::_HOURS_PER_DAY]
+    t_month = np.asarray(days.month)
+    t_dom = np.asarray(days.day)
+    geo = _target_geometry(index, lib.ref_year, site)                  # (2, n_hours)
+    h0_target = geo[1].reshape(-1, _HOURS_PER_DAY).sum(axis=1)         # (n_t,)
+
+    cls = _simulate_classes(rng, p_trans, t_month, freq[0], n_years)   # (N, n_t)
+    order, counts = _candidates(t_month, t_dom, lib, cls_src, n_classes, int(window_days))
+    p_class = freq[t_month - 1]                                         # (n_t, C)
+    base_w, _ = _balance_weights(order, counts, p_class,
+                                 (lib.month - 1) * n_classes + cls_src)
+    temp_daily = lib.values[ci["temp_air"]].mean(axis=1)
+    feature = np.stack([_month_z(lib.k, lib.month), _month_z(temp_daily, lib.month)],
+                       axis=1)
+    src = _draw_days(rng, cls, order, counts, base_w, feature, lib.prev,
+                     bool(nearest_neighbours))                          # (N, n_t)
+
+    h0_src = lib.h0[src]
+    scale = np.where(h0_src > 0, h0_target[None, :] / np.where(h0_src > 0, h0_src, 1.0), 1.0)
+    data = {}
+    for c, i in ci.items():
+        v = lib.values[i][src]                                          # (N, n_t, 24)
+        if c in IRRADIANCE_COLUMNS:
+            v = v * scale[:, :, None]
+        data[c] = v
+    if int(blend_hours) > 0 and "relative_humidity" in data:
+        t_prev_last = lib.values[ci["temp_air"]][lib.prev[src], -1]
+        data["temp_air"], data["relative_humidity"] = _blend_temperature(
+            data["temp_air"], data["relative_humidity"], t_prev_last, int(blend_hours))
+    shape = (n_years, len(index))
+    out = {c: np.ascontiguousarray(v.reshape(shape)) for c, v in data.items()}
+    for j, c in enumerate(DERIVED_COLUMNS):
+        out[c] = np.broadcast_to(geo[j], shape).copy()
+    src_start = np.asarray(lib.start.tz_localize(None).values)[src]
+    return SyntheticYears(index=index, data=out, columns=lib.columns, source_day=src_start,
+                          irradiance_scale=scale, day_class=cls, seed=seed)
+
+
+def generate_years(forcing, n_years: int, *, seed: int, n_classes: int = 3, year=None,
+                   **options) -> list[pd.DataFrame]:
+    """N synthetic weather years as forcing tables.
+
+    Same parameters as :func:`stack_years` (``window_days``, ``blend_hours``,
+    ``prior_count`` and ``site`` as keyword options), which holds the method's notes.
+    Returns a list of ``n_years`` DataFrames, each with the target year's hourly index
+    and every column of the source. For the engine, :func:`stack_years` gives the same
+    years as arrays without building DataFrames.
+    """
+    return stack_years(forcing, n_years, seed=seed, n_classes=n_classes, year=year,
+                       **options).frames()
