@@ -63,6 +63,25 @@ def _parser() -> argparse.ArgumentParser:
     c.add_argument("--out", default=None, metavar="DIR",
                    help="output folder (default: out/<scenario name>-compare)")
 
+    o = sub.add_parser("outlook", help="P50/P90 annual yield over weather years, "
+                       "sensitivity and the inputs bill",
+                       description="Simulate many weather years (synthetic from the typical "
+                       "year, or the file's real years) and parameter draws; report "
+                       "P50/P75/P90 annual yield, monthly bands, Sobol sensitivity of yield "
+                       "to the uncertain parameters and the farm's inputs bill.")
+    o.add_argument("scenario", help="scenario .toml")
+    o.add_argument("--years", type=int, default=None,
+                   help="weather years (default: uncertainty.weather_years)")
+    o.add_argument("--draws", type=int, default=None,
+                   help="parameter draws (default: uncertainty.draws; 1 without "
+                        "uncertain parameters)")
+    o.add_argument("--members", type=int, default=1,
+                   help="crash replicates per weather year and draw (default 1)")
+    o.add_argument("--seed", type=int, help="seed of weather years, draws and crashes")
+    o.add_argument("--no-sensitivity", action="store_true", help="skip the Sobol indices")
+    o.add_argument("--out", default=None, metavar="DIR",
+                   help="output folder (default: out/<scenario name>-outlook)")
+
     k = sub.add_parser("keys", help="print the scenario file reference (Markdown)")
     k.set_defaults()
     return p
@@ -72,7 +91,7 @@ def main(argv: list[str] | None = None) -> int:
     args = _parser().parse_args(argv)
     try:
         commands = {"weather": cmd_weather, "run": cmd_run, "compare": cmd_compare,
-                    "keys": cmd_keys}
+                    "outlook": cmd_outlook, "keys": cmd_keys}
         return commands[args.command](args)
     except InputError as err:
         print(f"pondsim: error: {err}", file=sys.stderr)
@@ -246,6 +265,79 @@ def cmd_compare(args) -> int:
     written += compare_figures(ds, table, crash, out)
     print("\nwritten: " + ", ".join(str(p) for p in written))
     print("\nCrash parameters are assumptions unless replaced by the site's own history.")
+    print("\n" + CAUTION)
+    return 0
+
+
+def _check_count(value, flag, high=100000):
+    if value is not None and not 1 <= value <= high:
+        raise InputError(f"{value} is out of range; allowed: a whole number in [1, {high}]",
+                         field=flag)
+
+
+def cmd_outlook(args) -> int:
+    from .inputs import bill_from_results
+    from .outlook import annual_table, monthly_bands, run_outlook, sensitivity
+    from .results import CAUTION, save, write_csv
+    from .scenario import load_scenario
+
+    _check_count(args.years, "--years")
+    _check_count(args.draws, "--draws")
+    _check_members(args.members)
+    scenario = load_scenario(args.scenario)
+    unc = scenario.uncertainty
+    n_years = args.years or unc.weather_years
+    n_draws = (args.draws or unc.draws) if unc.parameters else 1
+    seed = scenario.run.seed if args.seed is None else args.seed
+    out = Path(args.out) if args.out else Path("out") / f"{Path(args.scenario).stem}-outlook"
+    t0 = time.perf_counter()
+    ds, meta = run_outlook(scenario, n_years=n_years, n_draws=n_draws,
+                           members=args.members, seed=seed)
+    annual = annual_table(ds, scenario.pond.farm_area_m2)
+    bands = monthly_bands(ds)
+    best = annual["P50_t_ha_yr"].idxmax()
+    sens = None
+    if unc.parameters and not args.no_sensitivity:
+        print(f"Sobol sensitivity of '{best}': {unc.sobol_samples} x "
+              f"{len(unc.parameters) + 2} runs ...", flush=True)
+        sens = sensitivity(scenario, best, n=unc.sobol_samples, seed=seed)
+    quiet = ds.copy()
+    for name in ("evaporation", "rain"):
+        if "member" in ds[name].dims:
+            quiet[name] = ds[name].mean("member")
+    bill = bill_from_results(quiet, policy=best, rain_mm_daily=quiet["rain"].values)
+    elapsed = time.perf_counter() - t0
+    out.mkdir(parents=True, exist_ok=True)
+    written = [save(ds, out / "results.nc"), write_csv(annual, out / "annual_yield.csv"),
+               write_csv(bands, out / "monthly_bands.csv"),
+               write_csv(bill, out / "inputs_bill.csv")]
+    if sens is not None:
+        written.append(write_csv(sens, out / "sensitivity.csv"))
+    print(f"{scenario.study_name}: {n_years} weather years x {n_draws} parameter draws x "
+          f"{args.members} crash replicate(s), {elapsed:.1f} s")
+    for note in meta.get("notes", [])[-1:]:
+        print(f"  note: {note}")
+    print()
+    view = annual[["mean_t_ha_yr", "P50_t_ha_yr", "P75_t_ha_yr", "P90_t_ha_yr",
+                   "P50_farm_t_yr", "P90_farm_t_yr", "mean_g_m2_d", "expected_crashes_yr"]]
+    view.columns = ["mean t/ha/yr", "P50", "P75", "P90", "P50 farm t", "P90 farm t",
+                    "g/m2/d", "crashes/yr"]
+    print(view.to_string(float_format=lambda v: f"{v:,.2f}"))
+    print(f"\n(P90 = annual yield exceeded in 90 % of years.) Highest P50: {best}")
+    if sens is not None:
+        print("\nSobol indices of annual yield (first order, total):")
+        for name, r in sens.iterrows():
+            print(f"  {name:>24}: {r['first_order']:.2f}  {r['total']:.2f}")
+    yr = bill.loc["year"]
+    print(f"\ninputs bill for '{best}' (farm, per year): biomass {yr['biomass_t']:,.1f} t, "
+          f"CO2 {yr['co2_t']:,.1f} t, N {yr['n_t']:,.2f} t, P {yr['p_t']:,.2f} t, makeup "
+          f"water {yr['makeup_water_m3']:,.0f} m3, mixing {yr['mixing_MWh']:,.1f} MWh")
+    from .plots import outlook_figures
+
+    written += outlook_figures(ds, bands, sens, out)
+    print("\nwritten: " + ", ".join(str(p) for p in written))
+    print("\nSynthetic weather years resample the typical year: they spread the weather but "
+          "cannot hold years worse than the record.")
     print("\n" + CAUTION)
     return 0
 

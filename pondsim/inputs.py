@@ -479,7 +479,7 @@ def makeup_water(evaporation_mm, rain_mm, area_m2, harvest_volume_m3=0.0,
     hourly balance in :mod:`pondsim.thermal`). Pass daily (or hourly) values: summing
     over a month first lets a wet day offset a dry one and understates makeup.
     Condensation (negative evaporation) counts as gain, like rain. Blowdown to hold
-    salinity is not included.
+    salinity is not included. NaN inputs give NaN.
     """
     net_mm = np.maximum(evaporation_mm - rain_mm, 0.0)
     return net_mm * 1e-3 * area_m2 + harvest_volume_m3 * (1.0 - recycle_fraction)
@@ -670,8 +670,10 @@ class InputsParams:
     n_fertiliser : str, default "urea"
     p_fertiliser : str, default "dap_18_46_0"
         Products; see :data:`FERTILISERS` and :func:`fertiliser_plan`.
-    recycle_fraction : float, default 0.0 [-]
-        Share of harvested medium returned to the ponds (0: none, the conservative case).
+    recycle_fraction : float, default 0.9 [-]
+        Share of harvested medium returned to the ponds after dewatering. Farm designs
+        commonly recycle most of it (common practice; 0.9 from memory of design studies);
+        set 0 for the conservative case of no recycling.
     harvest_density_g_m3 : float, default 500 [g m-3]
         Culture density at harvest, used only to turn a harvested mass into a harvested
         volume when no volume is given; raceways are run at about 0.3-1 g L-1
@@ -697,7 +699,7 @@ class InputsParams:
     p_fraction: float = 0.01
     n_fertiliser: str = "urea"
     p_fertiliser: str = "dap_18_46_0"
-    recycle_fraction: float = 0.0
+    recycle_fraction: float = 0.9
     harvest_density_g_m3: float = 500.0
     manning_n: float = DEFAULT_MANNING_N
     bend_k: float = BEND_LOSS_K

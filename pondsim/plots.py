@@ -254,3 +254,60 @@ def mdates_num(ts):
     import matplotlib.dates as mdates
 
     return mdates.date2num(pd.Timestamp(ts).to_pydatetime())
+
+
+def outlook_figures(ds, bands, sens, out_dir) -> list[Path]:
+    """Exceedance curves of annual yield, monthly P10–P90 bands, Sobol indices."""
+    out_dir = Path(out_dir)
+    written = []
+    pols = list(ds["policy"].values)
+    annual = ds["harvested"].sum("day") * G_M2_TO_T_HA * 365.0 / ds.sizes["day"]
+
+    fig, ax = plt.subplots(figsize=(9, 5.5), constrained_layout=True)
+    for i, p in enumerate(pols):
+        a = np.sort(annual.sel(policy=p).values)[::-1]
+        exceed = 100 * (np.arange(1, a.size + 1) - 0.5) / a.size
+        ax.plot(exceed, a, label=str(p), **_style(i))
+    for q in (50, 75, 90):
+        ax.axvline(q, color="0.5", lw=0.8, linestyle=":")
+        ax.text(q, ax.get_ylim()[1], f" P{q}", va="top", fontsize=8, color="0.3")
+    ax.set_xlabel("probability of exceedance [%] (share of years with at least this yield)")
+    ax.set_ylabel("annual biomass yield [t ha$^{-1}$ yr$^{-1}$ AFDW]")
+    ax.set_title(f"{ds.attrs['site']}: annual yield over {ds.attrs.get('weather_years', 1)} "
+                 f"weather years × {ds.attrs.get('parameter_draws', 1)} parameter draws")
+    ax.grid(alpha=0.3)
+    ax.legend(fontsize=8)
+    written.append(_save(fig, out_dir / "exceedance.png"))
+
+    fig, ax = plt.subplots(figsize=(11, 5), constrained_layout=True)
+    months = np.arange(1, 13)
+    for i, p in enumerate(pols):
+        b = bands.xs(str(p), level="policy").reindex(months)
+        st = _style(i)
+        ax.fill_between(months, b["p10_g_m2_d"], b["p90_g_m2_d"], color=st["color"],
+                        alpha=0.2)
+        ax.plot(months, b["p50_g_m2_d"], marker="o", ms=3, label=f"{p}: P50 (band P10–P90)",
+                **st)
+    ax.set_xticks(months, [pd.Timestamp(2000, m, 1).strftime("%b") for m in months])
+    ax.set_ylabel("harvested productivity [g m$^{-2}$ d$^{-1}$]")
+    ax.set_title("Monthly productivity across weather years and parameter draws")
+    ax.grid(alpha=0.3)
+    ax.legend(fontsize=8)
+    written.append(_save(fig, out_dir / "monthly_bands.png"))
+
+    if sens is not None and len(sens):
+        fig, ax = plt.subplots(figsize=(8, 0.6 * len(sens) + 2), constrained_layout=True)
+        y = np.arange(len(sens))
+        ax.barh(y - 0.2, sens["first_order"], 0.4, color=COLORS[0], label="first order",
+                xerr=np.vstack([sens["first_order"] - sens["first_order_low"],
+                                sens["first_order_high"] - sens["first_order"]]).clip(0))
+        ax.barh(y + 0.2, sens["total"], 0.4, color=COLORS[1], hatch="//", label="total",
+                xerr=np.vstack([sens["total"] - sens["total_low"],
+                                sens["total_high"] - sens["total"]]).clip(0))
+        ax.set_yticks(y, sens.index)
+        ax.set_xlabel("Sobol index of annual yield [-] (bars: 95 % bootstrap interval)")
+        ax.set_title("Which uncertain parameters move the annual yield")
+        ax.grid(axis="x", alpha=0.3)
+        ax.legend(fontsize=8)
+        written.append(_save(fig, out_dir / "sensitivity.png"))
+    return written

@@ -39,12 +39,20 @@ def _attrs(name: str) -> dict:
     return {"long_name": long_name, "units": units}
 
 
-def build_dataset(daily, drivers, hourly: pd.DataFrame, scenario, meta: dict, *,
-                  policy_names, members: int) -> xr.Dataset:
+def build_dataset(daily, drivers, hourly_sets, scenario, meta: dict, *,
+                  policy_names, members: int, sets: tuple[int, int, int] | None = None
+                  ) -> xr.Dataset:
     """Assemble engine output and forcing aggregates into the results Dataset.
 
-    Engine arrays are policy-major over ``len(policy_names) * members`` rows.
+    Engine arrays are policy-major over ``len(policy_names) * members`` rows; within a
+    policy, members run over ``sets = (n_weather_years, n_draws, n_replicates)``, weather
+    year slowest. Variables that depend only on the weather year (water temperature, PAR,
+    evaporation, ...) have dims ``(day,)`` for one weather year and ``(member, day)``
+    otherwise; the carrying capacity likewise per driver set.
     """
+    if isinstance(hourly_sets, pd.DataFrame):
+        hourly_sets = [hourly_sets]
+    n_years, n_draws, reps = sets if sets is not None else (1, 1, members)
     n_pol = len(policy_names)
     n_days = daily.density.shape[1]
     depth = scenario.pond.depth_m
@@ -53,9 +61,32 @@ def build_dataset(daily, drivers, hourly: pd.DataFrame, scenario, meta: dict, *,
     def cube(a):
         return a.reshape(n_pol, members, n_days)
 
+    hourly = hourly_sets[0]
     dates = pd.DatetimeIndex(hourly.index[::HOURS_PER_DAY]).tz_localize(None).normalize()
     dims3 = ("policy", "member", "day")
-    days = hourly.groupby(np.arange(len(hourly)) // HOURS_PER_DAY)
+    member = np.arange(members)
+    year_of_member = member // (n_draws * reps)
+    set_of_member = member // reps
+
+    def per_year(column, how, scale=1.0):
+        values = []
+        for h in hourly_sets:
+            if column not in h:
+                values.append(np.full(n_days, np.nan))
+                continue
+            v = h[column].to_numpy(dtype=float).reshape(n_days, HOURS_PER_DAY)
+            values.append((v.sum(axis=1) if how == "sum" else v.mean(axis=1)) * scale)
+        values = np.stack(values)
+        if n_years == 1:
+            return ("day",), values[0]
+        return ("member", "day"), values[year_of_member]
+
+    def forcing_var(name, column, how, scale=1.0, attrs=None):
+        dims, values = per_year(column, how, scale)
+        return dims, values, attrs if attrs is not None else _attrs(name)
+
+    k_dims, k_values = (("day",), drivers.capacity[0]) if drivers.n_sets == 1 else \
+        (("member", "day"), drivers.capacity[set_of_member])
     ds = xr.Dataset(
         {
             "density": (dims3, cube(daily.density), _attrs("density")),
@@ -74,25 +105,26 @@ def build_dataset(daily, drivers, hourly: pd.DataFrame, scenario, meta: dict, *,
                 **_attrs("status"),
                 "flag_values": "0 1 2",
                 "flag_meanings": "growing restarting_after_crash not_yet_inoculated"}),
-            "carrying_capacity": (("day",), drivers.capacity[0], _attrs("carrying_capacity")),
-            "water_temperature": (("day",), days["water_temperature"].mean().to_numpy(),
-                                  _attrs("water_temperature")),
-            "par_daily": (("day",), days["par"].sum().to_numpy() * 3600e-6,
-                          _attrs("par_daily")),
-            "evaporation": (("day",), days["evaporation"].sum().to_numpy(),
-                            _attrs("evaporation")),
-            "ghi_daily": (("day",), days["ghi"].sum().to_numpy() * 3600e-6
-                          if "ghi" in hourly else np.full(n_days, np.nan),
-                          {"long_name": "daily global horizontal irradiation",
-                           "units": "MJ m-2 d-1"}),
+            "carrying_capacity": (k_dims, k_values, _attrs("carrying_capacity")),
+            "water_temperature": forcing_var("water_temperature", "water_temperature",
+                                             "mean"),
+            "par_daily": forcing_var("par_daily", "par", "sum", 3600e-6),
+            "evaporation": forcing_var("evaporation", "evaporation", "sum"),
+            "rain": forcing_var("rain", "rain", "sum", attrs={
+                "long_name": "rain falling on the pond", "units": "mm d-1"}),
+            "ghi_daily": forcing_var("ghi_daily", "ghi", "sum", 3600e-6, attrs={
+                "long_name": "daily global horizontal irradiation", "units": "MJ m-2 d-1"}),
         },
         coords={
             "policy": list(policy_names),
-            "season": (("day",), np.array([s.name for s in scenario.seasons])[
-                season_of_day(dates, scenario.seasons)]),
-            "member": np.arange(members),
+            "member": member,
+            "weather_year": (("member",), year_of_member),
+            "draw": (("member",), (member // reps) % n_draws),
+            "replicate": (("member",), member % reps),
             "day": np.arange(1, n_days + 1),
             "date": (("day",), dates.to_numpy()),
+            "season": (("day",), np.array([s.name for s in scenario.seasons])[
+                season_of_day(dates, scenario.seasons)]),
         },
     )
     for name in ("inoculated", "grown", "respired", "removed", "lost", "final"):
@@ -117,7 +149,10 @@ def build_dataset(daily, drivers, hourly: pd.DataFrame, scenario, meta: dict, *,
         "caution": CAUTION,
         "Conventions": "CF-1.10",
         "source": f"pondsim {_version()}",
-        "weather_notes": "; ".join(meta.get("notes", [])),
+        "weather_notes": "; ".join(str(n) for n in meta.get("notes", [])),
+        "weather_years": n_years,
+        "parameter_draws": n_draws,
+        "replicates": reps,
         "photons_per_joule_umol": float(hourly.attrs.get("photons_per_joule_umol", np.nan)),
         "recovery_efficiency": eff,
     }
@@ -151,8 +186,10 @@ def policy_summary(ds: xr.Dataset) -> pd.DataFrame:
     n_harvests = (ds["harvest_fraction"] > 0).sum("day").mean("member")
     mean_density = ds["density"].where(ds["status"] == 0).mean(("member", "day"))
     energy_kj_m2 = annual_g_m2 * BIOMASS_ENERGY_KJ_G
-    solar_kj_m2 = float(ds["ghi_daily"].sum()) * 1e3
-    par_j = float(ds["par_daily"].sum()) / ds.attrs.get("photons_per_joule_umol", 4.57) * 1e6
+    # Per weather year when there are several: the mean annual incident energy.
+    solar_kj_m2 = float(ds["ghi_daily"].sum("day").mean()) * 1e3
+    par_j = float(ds["par_daily"].sum("day").mean()) \
+        / ds.attrs.get("photons_per_joule_umol", 4.57) * 1e6
     rows = []
     for p in ds["policy"].values:
         e = float(energy_kj_m2.sel(policy=p))

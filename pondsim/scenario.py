@@ -215,6 +215,23 @@ PLAN_KEYS: dict[str, Key] = {
                             "one entry per season.", required=True),
 }
 
+UNCERTAINTY_KEYS: dict[str, Key] = {
+    "weather_years": Key("int", 20, "Synthetic weather years for outlook and tuning studies.",
+                         "", 1, 10000),
+    "draws": Key("int", 16, "Parameter draws (Latin hypercube) for outlook studies.", "",
+                 1, 10000),
+    "sobol_samples": Key("int", 64, "Base samples for Sobol sensitivity indices (a power "
+                         "of two; cost = samples x (parameters + 2) runs).", "", 8, 8192),
+}
+
+#: Distributions a strain parameter may take in [uncertainty], and their keys.
+DISTRIBUTIONS = {
+    "normal": ("sd",),            # mean = the strain's value
+    "lognormal": ("sigma",),      # median = the strain's value, sigma of ln
+    "uniform": ("low", "high"),
+    "triangular": ("low", "high"),  # mode = the strain's value
+}
+
 #: Meteorological seasons by month, hemisphere-neutral names; used when none are given.
 DEFAULT_SEASONS = (("Dec-Feb", (12, 1, 2)), ("Mar-May", (3, 4, 5)),
                    ("Jun-Aug", (6, 7, 8)), ("Sep-Nov", (9, 10, 11)))
@@ -342,6 +359,26 @@ class Plan:
 
 
 @dataclass(frozen=True)
+class Uncertain:
+    """One uncertain strain parameter: its distribution around the scenario value."""
+
+    parameter: str
+    distribution: str
+    sd: float | None = None
+    sigma: float | None = None
+    low: float | None = None
+    high: float | None = None
+
+
+@dataclass(frozen=True)
+class Uncertainty:
+    weather_years: int
+    draws: int
+    sobol_samples: int
+    parameters: tuple[Uncertain, ...] = ()
+
+
+@dataclass(frozen=True)
 class Run:
     members: int
     seed: int
@@ -366,6 +403,7 @@ class Scenario:
     crash: Crash = None  # type: ignore[assignment]
     seasons: tuple[Season, ...] = tuple(Season(n, m) for n, m in DEFAULT_SEASONS)
     plans: tuple[Plan, ...] = ()
+    uncertainty: Uncertainty = Uncertainty(20, 16, 64)
     path: Path | None = None
     extra: dict = field(default_factory=dict, compare=False)
 
@@ -489,7 +527,8 @@ def _parse_table(table, keys: dict[str, Key], path, prefix: str, base_dir: Path)
     return out
 
 
-TOP_LEVEL = tuple(s for s in SCHEMA if "." not in s) + ("policy", "season", "plan")
+TOP_LEVEL = tuple(s for s in SCHEMA if "." not in s) + ("policy", "season", "plan",
+                                                          "uncertainty")
 
 
 def parse_scenario(data: dict, path: str | Path | None = None) -> Scenario:
@@ -538,8 +577,61 @@ def parse_scenario(data: dict, path: str | Path | None = None) -> Scenario:
         pond=Pond(**sec["pond"]), light=Light(**sec["light"]), strain=strain,
         inoculation=inoc, harvest=Harvest(**sec["harvest"]), policies=policies,
         run=Run(**sec["run"]), crash=Crash(**sec["crash"]), seasons=seasons, plans=plans,
+        uncertainty=_parse_uncertainty(data.get("uncertainty", {}), strain, path, base_dir),
         path=Path(path).resolve() if path else None,
     )
+
+
+#: Strain parameters that may be given a distribution in [uncertainty].
+UNCERTAIN_PARAMETERS = ("mu_max_per_d", "light_param_umol_m2_s", "t_min_c", "t_opt_c",
+                        "t_max_c", "maintenance_per_d", "maintenance_theta",
+                        "k_biomass_m2_g", "k_background_per_m")
+
+
+def _parse_uncertainty(raw, strain: Strain, path, base_dir) -> Uncertainty:
+    if not isinstance(raw, dict):
+        raise InputError("expected a table", path=path, field="uncertainty")
+    plain = {k: v for k, v in raw.items() if k in UNCERTAINTY_KEYS}
+    settings = _parse_table(plain, UNCERTAINTY_KEYS, path, "uncertainty", base_dir)
+    params = []
+    allowed = tuple(UNCERTAINTY_KEYS) + UNCERTAIN_PARAMETERS
+    for name, spec in raw.items():
+        if name in UNCERTAINTY_KEYS:
+            continue
+        where = f"uncertainty.{name}"
+        if name not in UNCERTAIN_PARAMETERS:
+            raise InputError(f"unknown key{did_you_mean(name, allowed)}; allowed: "
+                             + ", ".join(allowed), path=path, field=where)
+        if not isinstance(spec, dict) or "distribution" not in spec:
+            raise InputError("expected an inline table such as { distribution = \"normal\", "
+                             "sd = 0.2 }; distributions: " + ", ".join(
+                                 f"{d} ({', '.join(k)})" for d, k in DISTRIBUTIONS.items()),
+                             path=path, field=where)
+        dist = spec["distribution"]
+        if dist not in DISTRIBUTIONS:
+            hint = did_you_mean(str(dist), DISTRIBUTIONS)
+            raise InputError(f"unknown distribution {dist!r}{hint}; allowed: "
+                             + ", ".join(DISTRIBUTIONS), path=path,
+                             field=f"{where}.distribution")
+        needed = DISTRIBUTIONS[dist]
+        extra = sorted(set(spec) - set(needed) - {"distribution"})
+        if extra:
+            raise InputError(f"{extra} do not apply to a {dist} distribution; it takes "
+                             + ", ".join(needed), path=path, field=where)
+        values = {}
+        for key in needed:
+            if key not in spec:
+                raise InputError(f"a {dist} distribution needs {', '.join(needed)}",
+                                 path=path, field=f"{where}.{key}")
+            values[key] = _check_number(spec[key], Key("float", low=0.0, high=1e6,
+                                                       open_low=key in ("sd", "sigma")),
+                                        path, f"{where}.{key}")
+        centre = getattr(strain, name)
+        if "low" in values and not values["low"] <= centre <= values["high"]:
+            raise InputError(f"low {values['low']:g} and high {values['high']:g} must "
+                             f"bracket the strain's value {centre:g}", path=path, field=where)
+        params.append(Uncertain(parameter=name, distribution=dist, **values))
+    return Uncertainty(parameters=tuple(params), **settings)
 
 
 def _parse_seasons(raw, path, base_dir) -> tuple[Season, ...]:
@@ -728,7 +820,11 @@ def schema_markdown() -> str:
         ("policy (array of tables [[policy]])", POLICY_KEYS),
         ("season (array of tables [[season]]; default: Dec-Feb, Mar-May, Jun-Aug, "
          "Sep-Nov)", SEASON_KEYS),
-        ("plan (array of tables [[plan]])", PLAN_KEYS)]
+        ("plan (array of tables [[plan]])", PLAN_KEYS),
+        ("uncertainty (plus one inline table per uncertain strain parameter, e.g. "
+         "mu_max_per_d = { distribution = \"normal\", sd = 0.2 }; distributions: "
+         + ", ".join(f"{d} ({', '.join(k)})" for d, k in DISTRIBUTIONS.items())
+         + ")", UNCERTAINTY_KEYS)]
     for section, keys in sections:
         lines += [f"### `[{section}]`", "", "| key | unit | default | allowed | meaning |",
                   "|---|---|---|---|---|"]

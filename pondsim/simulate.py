@@ -66,32 +66,83 @@ def hourly_light_and_water(forcing: pd.DataFrame, scenario: Scenario) -> pd.Data
     return out
 
 
-def build_drivers(hourly: pd.DataFrame, scenario: Scenario) -> Drivers:
-    """Growth drivers of one driver set from the hourly light and water table."""
+#: Strain parameters that may vary between driver sets (parameter draws).
+DRAWABLE = ("mu_max_per_d", "light_param_umol_m2_s", "t_min_c", "t_opt_c", "t_max_c",
+            "maintenance_per_d", "maintenance_theta", "maintenance_t_ref_c",
+            "k_biomass_m2_g", "k_background_per_m")
+
+
+def build_drivers(hourly_sets, scenario: Scenario, draws: dict | None = None) -> Drivers:
+    """Growth drivers for every (weather year, parameter draw) pair.
+
+    Parameters
+    ----------
+    hourly_sets : DataFrame or list of DataFrame
+        Hourly light and water tables (:func:`hourly_light_and_water`), one per weather
+        year, all of the same length.
+    scenario : Scenario
+    draws : dict of str -> ndarray (n_draws,), optional
+        Strain parameters (names in :data:`DRAWABLE`) that vary between draws; the others
+        keep the scenario's value.
+
+    Returns
+    -------
+    Drivers
+        ``n_years * n_draws`` sets, year-major (set = year * n_draws + draw).
+    """
+    if isinstance(hourly_sets, pd.DataFrame):
+        hourly_sets = [hourly_sets]
     s = scenario.strain
-    tw = hourly["water_temperature"].to_numpy(dtype=float)
-    par = hourly["par"].to_numpy(dtype=float)
-    ftemp = kinetics.ctmi(tw, s.t_min_c, s.t_opt_c, s.t_max_c)
-    maint = kinetics.maintenance_rate(tw, s.maintenance_per_d, s.maintenance_theta,
-                                      s.maintenance_t_ref_c)
-    n_days = len(tw) // HOURS_PER_DAY
+    draws = {} if draws is None else {k: np.asarray(v, dtype=float) for k, v in draws.items()}
+    unknown = sorted(set(draws) - set(DRAWABLE))
+    if unknown:
+        raise InputError(f"parameters {unknown} cannot vary; allowed: {', '.join(DRAWABLE)}",
+                         field="uncertainty")
+    n_draws = len(next(iter(draws.values()))) if draws else 1
+    n_years = len(hourly_sets)
+    year_of_set = np.repeat(np.arange(n_years), n_draws)
+    tw = np.stack([h["water_temperature"].to_numpy(float) for h in hourly_sets])[year_of_set]
+    par = np.stack([h["par"].to_numpy(float) for h in hourly_sets])[year_of_set]
+
+    def param(name):
+        if name in draws:
+            return np.tile(draws[name], n_years)
+        return np.full(n_years * n_draws, float(getattr(s, name)))
+
+    p = {name: param(name) for name in DRAWABLE}
+    bad = ~((p["t_min_c"] < p["t_opt_c"]) & (p["t_opt_c"] < p["t_max_c"])
+            & (p["t_opt_c"] > 0.5 * (p["t_min_c"] + p["t_max_c"])))
+    if bad.any():
+        raise InputError(f"{int(bad.sum())} parameter draw(s) break t_min_c < t_opt_c < "
+                         "t_max_c with t_opt_c above the mid-range (Rosso et al. 1993); "
+                         "narrow the temperature distributions", field="uncertainty")
+    col = {k: v[:, None] for k, v in p.items()}
+    ftemp = kinetics.ctmi(tw, col["t_min_c"], col["t_opt_c"], col["t_max_c"])
+    maint = kinetics.maintenance_rate(tw, col["maintenance_per_d"],
+                                      col["maintenance_theta"], col["maintenance_t_ref_c"])
+    n_sets, n_hours = tw.shape
+    n_days = n_hours // HOURS_PER_DAY
     if s.capacity_table_g_m3 is not None:
-        dates = hourly.index[::HOURS_PER_DAY]
-        k_daily = capacity.monthly_k_table(dates, s.capacity_table_g_m3)
+        dates = hourly_sets[0].index[::HOURS_PER_DAY]
+        k_daily = np.broadcast_to(capacity.monthly_k_table(dates, s.capacity_table_g_m3),
+                                  (n_sets, n_days))
     else:
+        def per_day(a):
+            return a.reshape(n_sets, n_days, HOURS_PER_DAY)
+
+        def per_set(name):
+            return p[name][:, None, None]
+
         k_daily = capacity.daily_carrying_capacity(
-            par.reshape(n_days, HOURS_PER_DAY), ftemp.reshape(n_days, HOURS_PER_DAY),
-            maint.reshape(n_days, HOURS_PER_DAY), mu_max=s.mu_max_per_d,
-            model=s.light_model, param=s.light_param_umol_m2_s,
-            k_biomass=s.k_biomass_m2_g, k_background=s.k_background_per_m,
+            per_day(par), per_day(ftemp), per_day(maint), mu_max=per_set("mu_max_per_d"),
+            model=s.light_model, param=per_set("light_param_umol_m2_s"),
+            k_biomass=per_set("k_biomass_m2_g"), k_background=per_set("k_background_per_m"),
             depth_m=scenario.pond.depth_m, nutrient_limit=s.nutrient_limit_g_m3)
-    one = np.ones(1)
     return Drivers(
-        par=par[None, :], temp_factor=np.asarray(ftemp, float)[None, :],
-        maintenance=np.asarray(maint, float)[None, :],
-        capacity=np.asarray(k_daily, float).reshape(1, n_days),
-        mu_max=one * s.mu_max_per_d, light_param=one * s.light_param_umol_m2_s,
-        k_biomass=one * s.k_biomass_m2_g, k_background=one * s.k_background_per_m,
+        par=par, temp_factor=np.asarray(ftemp, float), maintenance=np.asarray(maint, float),
+        capacity=np.array(k_daily, dtype=float).reshape(n_sets, n_days),
+        mu_max=p["mu_max_per_d"], light_param=p["light_param_umol_m2_s"],
+        k_biomass=p["k_biomass_m2_g"], k_background=p["k_background_per_m"],
         light_model=s.light_model, growth_form=s.growth_form,
         depth_m=scenario.pond.depth_m)
 
@@ -109,7 +160,8 @@ def operation_of(scenario: Scenario) -> Operation:
 
 
 def simulate(scenario: Scenario, members: int | None = None, seed: int | None = None,
-             *, progress: bool | None = None, forcing=None) -> xr.Dataset:
+             *, progress: bool | None = None, forcing=None, weather_years=None,
+             draws: dict | None = None) -> xr.Dataset:
     """Simulate a year of the scenario for every policy and member.
 
     Parameters
@@ -117,39 +169,55 @@ def simulate(scenario: Scenario, members: int | None = None, seed: int | None = 
     scenario : Scenario
         From :func:`pondsim.load_scenario`.
     members : int, optional
-        Members per policy (default ``scenario.run.members``).
+        Stochastic (crash) members per driver set and policy (default
+        ``scenario.run.members``).
     seed : int, optional
         Seed of the random streams (default ``scenario.run.seed``).
     progress : bool, optional
         Show a progress bar (default ``scenario.run.progress``; only for long runs).
     forcing : (DataFrame, dict), optional
         Forcing already read by :func:`load_forcing`.
+    weather_years : list of DataFrame, optional
+        Several forcing tables of the study year's calendar (e.g. from
+        :mod:`pondsim.weatheryears`); each becomes a weather year of the ensemble.
+    draws : dict of str -> ndarray, optional
+        Strain parameter draws (see :func:`build_drivers`).
 
     Returns
     -------
     xarray.Dataset
-        Dims ``(policy, member, day)``; see :func:`pondsim.results.build_dataset`.
+        Dims ``(policy, member, day)``; members run over weather year × draw × crash
+        replicate (coordinates ``weather_year``, ``draw``, ``replicate``); see
+        :func:`pondsim.results.build_dataset`.
     """
-    members = scenario.run.members if members is None else int(members)
+    reps = scenario.run.members if members is None else int(members)
     seed = scenario.run.seed if seed is None else int(seed)
     show = scenario.run.progress if progress is None else progress
-    table, meta = load_forcing(scenario) if forcing is None else forcing
-    hourly = hourly_light_and_water(table, scenario)
-    drivers = build_drivers(hourly, scenario)
-    dates = hourly.index[::HOURS_PER_DAY]
+    if weather_years is None:
+        table, meta = load_forcing(scenario) if forcing is None else forcing
+        weather_years = [table]
+    else:
+        meta = dict(forcing[1]) if forcing is not None else {}
+    hourly_sets = [hourly_light_and_water(t, scenario) for t in weather_years]
+    drivers = build_drivers(hourly_sets, scenario, draws)
+    dates = hourly_sets[0].index[::HOURS_PER_DAY]
+    per_policy = drivers.n_sets * reps
     rules, names = build_rules(scenario.policies, scenario.plans, scenario.seasons, dates,
-                               repeat=members)
-    stream = np.tile(np.arange(members), len(names))  # common random numbers
+                               repeat=per_policy)
+    set_of_member = np.tile(np.repeat(np.arange(drivers.n_sets), reps), len(names))
+    stream = np.tile(np.arange(per_policy), len(names))  # common random numbers
     bar = _progress_bar(show, drivers.n_days, rules.n_members)
     try:
         daily = integrate(drivers, rules, operation_of(scenario),
-                          crash=crash_model_of(scenario), seed=seed, stream_of_member=stream,
+                          set_of_member=set_of_member, crash=crash_model_of(scenario),
+                          seed=seed, stream_of_member=stream,
                           progress=None if bar is None else (lambda d: bar.update(1)))
     finally:
         if bar is not None:
             bar.close()
-    return build_dataset(daily, drivers, hourly, scenario, meta, policy_names=names,
-                         members=members)
+    n_draws = drivers.n_sets // len(hourly_sets)
+    return build_dataset(daily, drivers, hourly_sets, scenario, meta, policy_names=names,
+                         members=per_policy, sets=(len(hourly_sets), n_draws, reps))
 
 
 def crash_model_of(scenario: Scenario) -> CrashModel | None:

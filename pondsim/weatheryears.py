@@ -17,7 +17,9 @@ month — applied to classes of the daily clearness index, as Aguiar, Collares-P
 Conde (1988) do with their Markov transition matrices of daily clearness; the values of a
 day are then a whole historical day resampled from a date window, as in the
 nearest-neighbour weather resampling of Rajagopalan & Lall (1999), here conditioned on the
-simulated class instead of on the previous day's state vector.
+simulated class instead of on the previous day's state vector (conditioning on yesterday
+as well was tried: with one typical year as source, ~10 candidates per class and date
+window, it shifted monthly mean temperatures by up to 1 K, so it is not offered).
 
 References
 ----------
@@ -68,10 +70,12 @@ IRRADIANCE_COLUMNS = ("ghi", "dni", "dhi")
 #: ~10 candidates per class in one typical year, narrow enough that the noon solar zenith
 #: of the source day is within ~6 deg of the target's even at the equinoxes).
 WINDOW_DAYS = 15
-#: Pseudo-count added to every cell of a month's class transition count matrix before
-#: normalising the rows (a symmetric Dirichlet prior; chosen: 0.5 is Jeffreys' prior,
-#: small against the ~3 transitions per cell of one month of data with three classes).
-PRIOR_COUNT = 0.5
+#: Pseudo-count added to every cell of a month's class transition count matrix (a
+#: symmetric Dirichlet prior; chosen for pondsim: small against the ~3 transitions per
+#: cell of one month of one year with three classes, so that persistence is not diluted
+#: — 0.5 lowered the simulated lag-1 autocorrelation of daily clearness by ~0.03 on the
+#: Greensboro TMY3 — yet no transition of a sparse month has probability zero).
+PRIOR_COUNT = 0.1
 #: Default number of hours after midnight over which air temperature is blended to
 #: remove the jump between two resampled days (0 switches blending off).
 BLEND_HOURS = 3
@@ -301,7 +305,7 @@ def _candidates(t_month, t_dom, lib: _Library, cls, n_classes, window_days):
 
     Candidates of target day t and class c: source days of t's calendar month, at most
     ``window_days`` days of month from t's, of class c. Where that set is empty, the whole
-    month's days of class c (quantile classes leave none empty).
+    month's days of class c; where the month has none, any day of the window.
     """
     same_month = lib.month[None, :] == t_month[:, None]                # (n_t, n_src)
     near = same_month & (np.abs(lib.dom[None, :] - t_dom[:, None]) <= window_days)
@@ -309,11 +313,11 @@ def _candidates(t_month, t_dom, lib: _Library, cls, n_classes, window_days):
     pool = near[:, None, :] & of_class                                 # (n_t, C, n_src)
     empty = ~pool.any(axis=2)
     pool = np.where(empty[:, :, None], same_month[:, None, :] & of_class, pool)
+    # a class with no day in the month (ties, e.g. every day of a month equally clear):
+    # the chain can only enter it across a month boundary; take any day of the window
+    still = ~pool.any(axis=2)
+    pool = np.where(still[:, :, None], near[:, None, :], pool)
     counts = pool.sum(axis=2)
-    if (counts == 0).any():
-        t, c = np.argwhere(counts == 0)[0]
-        raise InputError(f"no source day of clearness class {c} in month {t_month[t]}; "
-                         "use fewer classes", field="n_classes")
     # stable argsort puts each pool's members first, in library order
     order = np.argsort(~pool, axis=2, kind="stable")[:, :, : counts.max()]
     return order, counts
@@ -369,47 +373,25 @@ def _balance_weights(order, counts, p_class, group, *, n_iter=500, tol=1e-6):
     return w, residual
 
 
-def _draw_days(rng, cls, order, counts, base_w, feature, prev, nearest):
-    """Source day of every synthetic day, shape (n_years, n_t), one day at a time.
+def _draw_days(rng, cls, order, counts, base_w):
+    """Source day of every synthetic day, shape (n_years, n_t).
 
-    Day ``t`` of class ``c`` draws from the (t, c) pool with probability proportional to
-    ``base_w`` (:func:`_balance_weights`). With ``nearest``, the draw is further
-    conditioned on yesterday, in the manner of Rajagopalan & Lall (1999): pool days are
-    ranked by the distance between THEIR source predecessor's feature vector and the
-    synthetic yesterday's, and the ``k = ceil(sqrt(pool size))`` nearest get the kernel
-    weight ``1/rank`` of Lall & Sharma (1996), the others none.
+    Day ``t`` of class ``c`` draws one day of the (t, c) pool with probability
+    proportional to ``base_w`` (:func:`_balance_weights`), independently of other days:
+    all persistence comes from the class chain. Vectorised: the pools' cumulative
+    probabilities are laid end to end (pool ``r`` spans ``[r, r + 1]``) and searched once.
     """
-    n_years, n_t = cls.shape
-    m = order.shape[2]
-    u = rng.random((n_years, n_t))
-    src = np.empty((n_years, n_t), dtype=np.int64)
-    slots = np.arange(m)[None, :]
-    rows = np.arange(n_years)
-    for t in range(n_t):  # vectorised over years; one step per day
-        cand = order[t, cls[:, t]]                                  # (N, M)
-        n = counts[t, cls[:, t]]                                    # (N,)
-        valid = slots < n[:, None]
-        w = np.where(valid, base_w[cand], 0.0)
-        if nearest and t > 0:
-            diff = feature[prev[cand]] - feature[src[:, t - 1]][:, None, :]
-            d2 = np.where(valid, (diff ** 2).sum(axis=2), np.inf)
-            rank = np.argsort(np.argsort(d2, axis=1, kind="stable"), axis=1, kind="stable")
-            k = np.ceil(np.sqrt(n))[:, None]
-            w = w * np.where(rank < k, 1.0 / (rank + 1.0), 0.0)
-        cw = np.cumsum(w, axis=1)
-        j = (u[:, t, None] * cw[:, -1:] >= cw).sum(axis=1)
-        src[:, t] = cand[rows, np.minimum(j, n - 1)]
-    return src
-
-
-def _month_z(x, month):
-    """Standard score of each day's value within its calendar month of the source."""
-    z = np.zeros_like(x, dtype=float)
-    for mm in range(1, 13):
-        sel = month == mm
-        sd = x[sel].std()
-        z[sel] = (x[sel] - x[sel].mean()) / (sd if sd > 0 else 1.0)
-    return z
+    n_t, n_c, m = order.shape
+    valid = np.arange(m)[None, None, :] < counts[:, :, None]
+    w = np.where(valid, base_w[order], 0.0)
+    cum = np.cumsum(w, axis=2) / w.sum(axis=2, keepdims=True)
+    cum[..., -1] = 1.0                         # guard against rounding
+    pool = np.arange(n_t)[None, :] * n_c + cls                  # (N, n_t)
+    flat = (cum + np.arange(n_t * n_c).reshape(n_t, n_c, 1)).ravel()
+    u = rng.random(cls.shape)
+    pos = np.searchsorted(flat, pool + u, side="right") - pool * m
+    slot = np.minimum(pos, counts.reshape(-1)[pool] - 1)
+    return order.reshape(n_t * n_c, m)[pool, slot]
 
 
 # --------------------------------------------------------------------------- generator
@@ -425,7 +407,7 @@ class SyntheticYears:
         Every column of the forcing table, in the source's units.
     columns : tuple of str
         Column order of the source table.
-    source_day : ndarray of int, shape (n_years, n_days)
+    source_day : ndarray of datetime64, shape (n_years, n_days)
         Start (00:00) of the source day each synthetic day was copied from, as
         ``datetime64`` values of the source index (local standard time, naive).
     irradiance_scale : ndarray, shape (n_years, n_days)
@@ -504,13 +486,14 @@ def _blend_temperature(temp, rh, lib_temp_prev_last, hours):
     new_t = temp + shift[:, :, None] * w[None, None, :]
     e = rh * saturation_vapour_pressure(temp)
     new_rh = np.minimum(100.0, e / saturation_vapour_pressure(new_t))
-    return new_t, new_rh
+    touched = (w > 0)[None, None, :]   # leave later hours bit-identical to the source day
+    return np.where(touched, new_t, temp), np.where(touched, new_rh, rh)
 
 
 def stack_years(forcing, n_years: int, *, seed: int, n_classes: int = 3, year=None,
                 window_days: int = WINDOW_DAYS, blend_hours: int = BLEND_HOURS,
-                prior_count: float = PRIOR_COUNT, nearest_neighbours: bool = True,
-                site: Mapping | None = None) -> SyntheticYears:
+                prior_count: float = PRIOR_COUNT, site: Mapping | None = None
+                ) -> SyntheticYears:
     """Synthetic weather years as arrays ``(n_years, n_hours)`` per column.
 
     Parameters
@@ -553,17 +536,21 @@ def stack_years(forcing, n_years: int, *, seed: int, n_classes: int = 3, year=No
        quantiles of its calendar month (so classes mean "clearer than usual for the
        month", not fixed sky states).
     2. Per month, the class transition matrix ``P[i, j]`` is estimated from consecutive
-       source days (the month of the earlier day), each cell plus ``prior_count``, rows
-       normalised — Richardson's (1981) first-order occurrence chain with monthly
-       parameters, on clearness classes as in Aguiar, Collares-Pereira & Conde (1988).
+       source days (the month of the earlier day), each cell plus ``prior_count``,
+       balanced to the month's class frequencies (:func:`_transitions`) — Richardson's
+       (1981) first-order occurrence chain with monthly parameters, on clearness classes
+       as in Aguiar, Collares-Pereira & Conde (1988).
     3. Each synthetic year's class sequence is simulated from those matrices; the first
        day's class is drawn from the frequencies of the source's January days.
-    4. Synthetic day ``t`` of class ``c`` copies, with equal probability, one source day
-       of class ``c`` from the same calendar month within ``window_days`` of ``t``'s day
-       of month (whole month if none) — a day bootstrap in the manner of Rajagopalan &
-       Lall (1999). All columns of the day are copied together, hour by hour, so the
-       joint behaviour of irradiance, temperature, wind and humidity within the day is
-       that of a real day.
+    4. Synthetic day ``t`` of class ``c`` copies one source day of class ``c`` from the
+       same calendar month within ``window_days`` of ``t``'s day of month (whole month
+       if none) — a day bootstrap in the manner of Rajagopalan & Lall (1999). The draw
+       is weighted so that, over the year, every source day of a month and class is
+       expected to be drawn equally often (:func:`_balance_weights`; a plain uniform
+       draw in a window clipped to the month under-samples the month's first and last
+       days). Together with step 2 this keeps monthly means unbiased. All columns of the
+       day are copied together, hour by hour, so the joint behaviour of irradiance,
+       temperature, wind and humidity within the day is that of a real day.
     5. ``solar_zenith`` and ``ghi_clear`` are those of the TARGET date (see ``site``);
        ``ghi``, ``dni`` and ``dhi`` of the source day are multiplied by
        ``H0_target / H0_source``, the ratio of clear-sky daily totals, so the day keeps
@@ -577,6 +564,13 @@ def stack_years(forcing, n_years: int, *, seed: int, n_classes: int = 3, year=No
        other columns are not blended.
 
     Each synthetic year is drawn independently (no carry-over from the previous year).
+
+    Limits, measured on the Greensboro TMY3 (200 years): the lag-1 autocorrelation of
+    daily clearness is 0.22 against the source's 0.29 (within-class draws are
+    independent); that of daily mean air temperature only 0.17 against 0.69, since
+    warm and cold spells persist only through their link with the clearness classes.
+    Memory: 8 bytes x 8760 h per column per year (~0.6 GB for 1000 years of 9 columns
+    while building).
     """
     n_years = int(n_years)
     if n_years < 1:
@@ -617,11 +611,7 @@ def stack_years(forcing, n_years: int, *, seed: int, n_classes: int = 3, year=No
     p_class = freq[t_month - 1]                                         # (n_t, C)
     base_w, _ = _balance_weights(order, counts, p_class,
                                  (lib.month - 1) * n_classes + cls_src)
-    temp_daily = lib.values[ci["temp_air"]].mean(axis=1)
-    feature = np.stack([_month_z(lib.k, lib.month), _month_z(temp_daily, lib.month)],
-                       axis=1)
-    src = _draw_days(rng, cls, order, counts, base_w, feature, lib.prev,
-                     bool(nearest_neighbours))                          # (N, n_t)
+    src = _draw_days(rng, cls, order, counts, base_w)                   # (N, n_t)
 
     h0_src = lib.h0[src]
     scale = np.where(h0_src > 0, h0_target[None, :] / np.where(h0_src > 0, h0_src, 1.0), 1.0)

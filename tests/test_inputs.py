@@ -3,7 +3,6 @@ mixing power and the inputs bill."""
 
 from __future__ import annotations
 
-import math
 from types import SimpleNamespace
 
 import numpy as np
@@ -75,8 +74,8 @@ def test_co2_demand_keeps_series():
 def test_nutrient_demand_defaults():
     # REFERENCES.md: N ~6-8 %, P ~1 % of dry weight [R/M]
     n, p = inputs.nutrient_demand(np.array([0.0, 100.0]))
-    assert n.tolist() == [0.0, 7.0]
-    assert p.tolist() == [0.0, 1.0]
+    assert n.tolist() == pytest.approx([0.0, 7.0], rel=1e-12)
+    assert p.tolist() == pytest.approx([0.0, 1.0], rel=1e-12)
 
 
 def test_redfield_mass_ratios():
@@ -368,8 +367,9 @@ def test_bill_accepts_month_numbers_and_partial_years():
     farm = SimpleNamespace(area_m2=1000.0, count=2, depth_m=0.3)  # a scenario-like pond
     bill = inputs.inputs_bill(harvested, evap, None, farm)
     assert bill.loc["year", "biomass_t"] == pytest.approx(12.0)
+    recycled = inputs.InputsParams().recycle_fraction
     assert bill.loc["year", "makeup_water_m3"] == pytest.approx(
-        12 * 150e-3 * 2000 + 12 * 1000 * 1e3 / 500)
+        12 * 150e-3 * 2000 + 12 * 1000 * 1e3 / 500 * (1 - recycled))
     power = inputs.mixing_power(farm)["power_w"]
     assert bill.loc["year", "mixing_MWh"] == pytest.approx(power * 2 * 24 * 365 * 1e-6)
     # ten daily rows in January: ten days of mixing, not 31
@@ -424,7 +424,8 @@ def test_bill_from_results():
     assert list(bill.index) == ["Jan", "Feb", "year"]
     vol = float(ds["harvest_fraction"].sel(policy="b").mean("member").sum()) * 1000 * 0.25 * 4
     evap_m3 = float(ds["evaporation"].clip(min=0).sum()) * 1e-3 * farm_area
-    assert bill.loc["year", "makeup_water_m3"] == pytest.approx(evap_m3 + vol)
+    recycled = inputs.InputsParams().recycle_fraction
+    assert bill.loc["year", "makeup_water_m3"] == pytest.approx(evap_m3 + vol * (1 - recycled))
     # rain reduces the makeup water; a wrong length is refused
     wet = inputs.bill_from_results(ds, policy="b", rain_mm_daily=np.full(59, 2.0))
     assert wet.loc["year", "makeup_water_m3"] < bill.loc["year", "makeup_water_m3"]
