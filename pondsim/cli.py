@@ -82,6 +82,21 @@ def _parser() -> argparse.ArgumentParser:
     o.add_argument("--out", default=None, metavar="DIR",
                    help="output folder (default: out/<scenario name>-outlook)")
 
+    t = sub.add_parser("tune", help="tune the harvest rule of each season",
+                       description="Search fixed-fraction, threshold and fixed-interval "
+                       "rules for each season (many candidates per vectorised pass, then "
+                       "Nelder-Mead refinement) for the most biomass within the crash-risk "
+                       "limit; write the tuned plan into a copy of the scenario.")
+    t.add_argument("scenario", help="scenario .toml")
+    t.add_argument("--years", type=int, default=None,
+                   help="weather years (default: uncertainty.weather_years, at most 8)")
+    t.add_argument("--members", type=int, default=8,
+                   help="crash replicates per weather year (default 8)")
+    t.add_argument("--seed", type=int, help="seed of weather years and crashes")
+    t.add_argument("--no-refine", action="store_true", help="grid search only")
+    t.add_argument("--out", default=None, metavar="DIR",
+                   help="output folder (default: out/<scenario name>-tune)")
+
     k = sub.add_parser("keys", help="print the scenario file reference (Markdown)")
     k.set_defaults()
     return p
@@ -91,7 +106,7 @@ def main(argv: list[str] | None = None) -> int:
     args = _parser().parse_args(argv)
     try:
         commands = {"weather": cmd_weather, "run": cmd_run, "compare": cmd_compare,
-                    "outlook": cmd_outlook, "keys": cmd_keys}
+                    "outlook": cmd_outlook, "tune": cmd_tune, "keys": cmd_keys}
         return commands[args.command](args)
     except InputError as err:
         print(f"pondsim: error: {err}", file=sys.stderr)
@@ -338,6 +353,59 @@ def cmd_outlook(args) -> int:
     print("\nwritten: " + ", ".join(str(p) for p in written))
     print("\nSynthetic weather years resample the typical year: they spread the weather but "
           "cannot hold years worse than the record.")
+    print("\n" + CAUTION)
+    return 0
+
+
+def cmd_tune(args) -> int:
+    from .compare import best_by_season, season_table
+    from .outlook import weather_years
+    from .results import CAUTION, write_csv
+    from .scenario import load_scenario, relocate_text
+    from .simulate import simulate
+    from .tune import describe, tune_scenario, tuned_scenario_text, write_text
+
+    _check_count(args.years, "--years")
+    _check_members(args.members)
+    scenario = load_scenario(args.scenario)
+    n_years = args.years or min(scenario.uncertainty.weather_years, 8)
+    seed = scenario.run.seed if args.seed is None else args.seed
+    out = Path(args.out) if args.out else Path("out") / f"{Path(args.scenario).stem}-tune"
+    t0 = time.perf_counter()
+    plan, table = tune_scenario(scenario, n_years=n_years, members=args.members, seed=seed,
+                                refine=not args.no_refine, progress=scenario.run.progress)
+    names = [p.name for p in scenario.policies] + [p.name for p in scenario.plans]
+    out.mkdir(parents=True, exist_ok=True)
+    original = relocate_text(Path(args.scenario).read_text(encoding="utf-8"), scenario, out)
+    text, plan_name = tuned_scenario_text(original, scenario.seasons, plan, names)
+    tuned_path = out / f"{Path(args.scenario).stem}_tuned.toml"
+    write_text(tuned_path, text)
+    # Check the written file and compare the tuned plan with the original policies on
+    # fresh crash draws (a different seed from the tuning).
+    tuned = load_scenario(tuned_path)
+    years, meta = weather_years(tuned, n_years, seed)
+    ds = simulate(tuned, members=args.members, seed=seed + 1, forcing=(years[0], meta),
+                  weather_years=years, progress=False)
+    seasons = season_table(ds)
+    limit = scenario.crash.max_season_probability
+    best = best_by_season(seasons, limit)
+    elapsed = time.perf_counter() - t0
+    written = [tuned_path, write_csv(table, out / "tuned_plan.csv"),
+               write_csv(seasons, out / "tuned_comparison.csv")]
+    print(f"{scenario.study_name}: tuned over {n_years} weather years x {args.members} crash "
+          f"replicates, {elapsed:.1f} s\n")
+    print(f"tuned plan (risk limit P(>= 1 crash) <= {limit:.0%} per season):")
+    for season, p in zip(scenario.seasons, plan, strict=True):
+        r = table.loc[season.name]
+        flag = "" if r["within_risk_limit"] else "  [limit not met: least risky found]"
+        print(f"  {season.name:>10}: {describe(p)}  (P(crash) {r['p_crash']:.0%}){flag}")
+    annual = ds["harvested"].sum("day").mean("member") * 0.01
+    print("\nannual yield on fresh crash draws [t/ha/yr]: "
+          + ", ".join(f"{p}: {float(annual.sel(policy=p)):.1f}" for p in ds["policy"].values))
+    print("best per season on fresh draws: "
+          + ", ".join(f"{s}: {r['best_policy']}" for s, r in best.iterrows()))
+    print(f"\nrun it: pondsim compare {tuned_path}")
+    print("written: " + ", ".join(str(p) for p in written))
     print("\n" + CAUTION)
     return 0
 

@@ -101,21 +101,34 @@ def build_rules(policies, plans, seasons, dates, repeat: int = 1):
     entries = [[p] * len(seasons) for p in policies]
     entries += [[by_name[plan.policy_by_season[s.name]] for s in seasons] for plan in plans]
     names = [p.name for p in policies] + [plan.name for plan in plans]
+    return rules_from_entries(entries, season_of_day(dates, seasons), repeat), names
 
+
+def rules_from_entries(entries, period_of_day, repeat: int = 1) -> HarvestRules:
+    """Rule table from ``entries[i][s]``: the policy of entry *i* in period *s*.
+
+    Parameters
+    ----------
+    entries : list of list of :class:`pondsim.scenario.Policy`
+        One row per entry (policy, plan or tuning candidate), one policy per period.
+    period_of_day : ndarray of int, shape (n_days,)
+        Period (column) of each day.
+    repeat : int
+        Members per entry (entry-major order).
+    """
     def table(get, dtype=float):
         rows = np.array([[get(p) for p in row] for row in entries], dtype=dtype)
         return np.repeat(rows, repeat, axis=0)
 
     nan = float("nan")
-    rules = HarvestRules(
+    return HarvestRules(
         code=table(lambda p: RULE_CODES[p.type], np.int8),
         fraction=table(lambda p: nan if p.fraction is None else p.fraction),
         every_days=table(lambda p: p.every_days, np.int32),
         trigger=table(lambda p: nan if p.trigger_g_m3 is None else p.trigger_g_m3),
         residual=table(lambda p: nan if p.residual_g_m3 is None else p.residual_g_m3),
-        period_of_day=season_of_day(dates, seasons)[None, :],
+        period_of_day=np.asarray(period_of_day, dtype=np.int16)[None, :],
     )
-    return rules, names
 
 
 def removal_fraction(rules: HarvestRules, day: int, density_g_m3, days_since_harvest,

@@ -843,3 +843,26 @@ def schema_markdown() -> str:
             lines.append(f"| `{name}` | {unit} | {default} | {allowed} | {key.doc} |")
         lines.append("")
     return "\n".join(lines)
+
+
+def relocate_text(text: str, scenario: Scenario, new_dir: str | Path) -> str:
+    """Scenario file text for a copy placed in *new_dir*: the weather file's path is
+    rewritten relative to the new folder so that the copy still finds it."""
+    import os
+    import re
+
+    if scenario.weather.path is None:
+        return text
+    rel = Path(os.path.relpath(scenario.weather.path, Path(new_dir).resolve())).as_posix()
+    section = None
+    lines = text.splitlines(keepends=True)
+    for i, line in enumerate(lines):
+        head = re.match(r"\s*\[+\s*([^\]]+?)\s*\]+", line)
+        if head:
+            section = head.group(1)
+            continue
+        if section == "weather" and re.match(r"\s*path\s*=", line):
+            lines[i] = re.sub(r"(path\s*=\s*)([\"']).*?\2", lambda m: f'{m.group(1)}"{rel}"',
+                              line, count=1)
+            break
+    return "".join(lines)
