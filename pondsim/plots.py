@@ -31,8 +31,8 @@ FLUX_LABELS = {
 
 
 def _save(fig, path) -> Path:
-    fig.text(0.01, 0.005, "Estimates only — see the caution in the README.", fontsize=7,
-             color="0.4")
+    fig.text(0.995, 0.998, "pondsim estimates, not guarantees", fontsize=7, color="0.4",
+             ha="right", va="top")
     path = Path(path)
     out = _atomic_write(path, lambda tmp: fig.savefig(tmp, dpi=110, format="png"))
     plt.close(fig)
@@ -110,7 +110,8 @@ def weather_figure(table: pd.DataFrame, water: pd.DataFrame, forcing: pd.DataFra
     ax.set_xticks(x, months)
     ax.set_ylabel("mean heat flux into the pond [W m$^{-2}$]")
     ax.set_title("Monthly energy budget (gains up, losses down)")
-    ax.legend(fontsize=7, ncol=2, loc="lower left")
+    ax.legend(fontsize=7, ncol=4, loc="upper center", bbox_to_anchor=(0.5, -0.07),
+              frameon=False)
     return _save(fig, path)
 
 
