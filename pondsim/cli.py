@@ -97,6 +97,10 @@ def _parser() -> argparse.ArgumentParser:
     t.add_argument("--out", default=None, metavar="DIR",
                    help="output folder (default: out/<scenario name>-tune)")
 
+    from .calibrate import add_fit_parser
+
+    add_fit_parser(sub)
+
     k = sub.add_parser("keys", help="print the scenario file reference (Markdown)")
     k.set_defaults()
     return p
@@ -106,7 +110,8 @@ def main(argv: list[str] | None = None) -> int:
     args = _parser().parse_args(argv)
     try:
         commands = {"weather": cmd_weather, "run": cmd_run, "compare": cmd_compare,
-                    "outlook": cmd_outlook, "tune": cmd_tune, "keys": cmd_keys}
+                    "outlook": cmd_outlook, "tune": cmd_tune, "fit": cmd_fit,
+                    "keys": cmd_keys}
         return commands[args.command](args)
     except InputError as err:
         print(f"pondsim: error: {err}", file=sys.stderr)
@@ -114,6 +119,12 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("pondsim: interrupted", file=sys.stderr)
         return 130
+
+
+def cmd_fit(args) -> int:
+    from .calibrate import cmd_fit as run_fit
+
+    return run_fit(args)
 
 
 def cmd_keys(args) -> int:
