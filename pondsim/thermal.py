@@ -65,98 +65,14 @@ _DEPTH_RANGE_M = (0.05, 1.0)
 _MIN_COUPLING = 1e-3  # W m-2 K-1, guards the exponential weights against a = 0
 
 
-# ---------------------------------------------------------------------------------------
-# FAO-56 helpers
-# ---------------------------------------------------------------------------------------
-
-def saturation_vapour_pressure(t_c):
-    """Saturation vapour pressure over water, FAO-56 eq. 11.
-
-    Parameters
-    ----------
-    t_c : float, array-like or Series [°C]
-
-    Returns
-    -------
-    same type [kPa]
-
-    Notes
-    -----
-    .. math:: e°(T) = 0.6108 \\exp\\left(\\frac{17.27 T}{T + 237.3}\\right)
-
-    References
-    ----------
-    Allen et al. (1998) FAO-56, eq. 11 and Annex 2 Table 2.3.
-    """
-    t = np.asarray(t_c, dtype=float) if not isinstance(t_c, pd.Series) else t_c
-    return 0.6108 * np.exp(17.27 * t / (t + 237.3))
-
-
-def slope_saturation_vapour_pressure(t_c):
-    """Slope of the saturation vapour pressure curve, FAO-56 eq. 13.
-
-    Parameters
-    ----------
-    t_c : float, array-like or Series [°C]
-
-    Returns
-    -------
-    same type [kPa °C-1]
-
-    Notes
-    -----
-    .. math:: Δ = \\frac{4098\\, e°(T)}{(T + 237.3)^2}
-
-    References
-    ----------
-    Allen et al. (1998) FAO-56, eq. 13 and Annex 2 Table 2.4.
-    """
-    t = np.asarray(t_c, dtype=float) if not isinstance(t_c, pd.Series) else t_c
-    return 4098.0 * saturation_vapour_pressure(t) / (t + 237.3) ** 2
-
-
-def psychrometric_constant(pressure_kpa):
-    """Psychrometric constant, FAO-56 eq. 8.
-
-    Parameters
-    ----------
-    pressure_kpa : float, array-like or Series [kPa]
-
-    Returns
-    -------
-    same type [kPa °C-1]
-
-    Notes
-    -----
-    γ = c_p P / (ε λ) = 0.665e-3 P, with λ = 2.45 MJ kg-1 as in FAO-56.
-
-    References
-    ----------
-    Allen et al. (1998) FAO-56, eq. 8 and Annex 2 Table 2.2.
-    """
-    return 0.665e-3 * pressure_kpa
-
-
-def pressure_from_elevation(z_m):
-    """Standard-atmosphere pressure at an elevation, FAO-56 eq. 7.
-
-    Parameters
-    ----------
-    z_m : float, array-like or Series [m above sea level]
-
-    Returns
-    -------
-    same type [kPa]
-
-    Notes
-    -----
-    .. math:: P = 101.3 \\left(\\frac{293 - 0.0065 z}{293}\\right)^{5.26}
-
-    References
-    ----------
-    Allen et al. (1998) FAO-56, eq. 7 and Annex 2 Table 2.1.
-    """
-    return 101.3 * ((293.0 - 0.0065 * np.asarray(z_m, dtype=float)) / 293.0) ** 5.26
+# FAO-56 vapour-pressure and pressure relations live in pondsim.psychrometry (shared with
+# the weather readers); they are re-exported here for the thermal stage's users.
+from .psychrometry import (  # noqa: E402, F401
+    pressure_from_elevation,
+    psychrometric_constant,
+    saturation_vapour_pressure,
+    slope_saturation_vapour_pressure,
+)
 
 
 def wind_at_2m(uz, z_m):

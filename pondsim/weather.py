@@ -44,6 +44,7 @@ import numpy as np
 import pandas as pd
 import pvlib
 
+from pondsim import psychrometry
 from pondsim.errors import InputError, did_you_mean
 
 __all__ = [
@@ -117,55 +118,13 @@ def _pandas4_warning():
 
 
 def pressure_from_elevation(elevation_m):
-    """Mean atmospheric pressure at an elevation, FAO-56 eq. 7.
-
-    Parameters
-    ----------
-    elevation_m : float or array-like [m]
-        Elevation above sea level.
-
-    Returns
-    -------
-    pressure : float or ndarray [Pa]
-
-    Notes
-    -----
-    ``P = 101.3 ((293 - 0.0065 z) / 293) ** 5.26`` kPa, a standard atmosphere at 20 degC.
-
-    References
-    ----------
-    Allen, Pereira, Raes & Smith (1998), FAO Irrigation and Drainage Paper 56, eq. 7.
-    """
-    z = np.asarray(elevation_m, dtype=float)
-    return 1000.0 * 101.3 * ((293.0 - 0.0065 * z) / 293.0) ** 5.26
+    """Mean atmospheric pressure at an elevation [Pa], FAO-56 eq. 7 (see
+    :func:`pondsim.psychrometry.pressure_from_elevation`, which gives kPa)."""
+    return 1000.0 * psychrometry.pressure_from_elevation(elevation_m)
 
 
-def saturation_vapour_pressure(temp_air):
-    """Saturation vapour pressure over water, FAO-56 eq. 11.
-
-    Parameters
-    ----------
-    temp_air : float or array-like [degC]
-
-    Returns
-    -------
-    e_sat : float or ndarray [kPa]
-        ``0.6108 exp(17.27 T / (T + 237.3))``.
-    """
-    t = np.asarray(temp_air, dtype=float)
-    return 0.6108 * np.exp(17.27 * t / (t + 237.3))
-
-
-def dewpoint_from_rh(temp_air, relative_humidity):
-    """Dew-point temperature [degC] from air temperature [degC] and RH [%].
-
-    Inverts FAO-56 eq. 11 for the actual vapour pressure ``e = RH/100 · e°(T)``. RH is
-    floored at 1 % so that the logarithm stays finite.
-    """
-    rh = np.clip(np.asarray(relative_humidity, dtype=float), 1.0, 100.0)
-    e = rh / 100.0 * saturation_vapour_pressure(temp_air)
-    x = np.log(e / 0.6108)
-    return 237.3 * x / (17.27 - x)
+saturation_vapour_pressure = psychrometry.saturation_vapour_pressure
+dewpoint_from_rh = psychrometry.dewpoint_from_rh
 
 
 def solar_position_midhour(index, latitude, longitude, elevation_m=0.0, *,
