@@ -98,8 +98,12 @@ def _parser() -> argparse.ArgumentParser:
                    help="output folder (default: out/<scenario name>-tune)")
 
     from .calibrate import add_fit_parser
+    from .report import add_report_parser
+    from .screen import add_screen_parser
 
     add_fit_parser(sub)
+    add_screen_parser(sub)
+    add_report_parser(sub)
 
     k = sub.add_parser("keys", help="print the scenario file reference (Markdown)")
     k.set_defaults()
@@ -111,7 +115,7 @@ def main(argv: list[str] | None = None) -> int:
     try:
         commands = {"weather": cmd_weather, "run": cmd_run, "compare": cmd_compare,
                     "outlook": cmd_outlook, "tune": cmd_tune, "fit": cmd_fit,
-                    "keys": cmd_keys}
+                    "screen": cmd_screen, "report": cmd_report, "keys": cmd_keys}
         return commands[args.command](args)
     except InputError as err:
         print(f"pondsim: error: {err}", file=sys.stderr)
@@ -125,6 +129,18 @@ def cmd_fit(args) -> int:
     from .calibrate import cmd_fit as run_fit
 
     return run_fit(args)
+
+
+def cmd_screen(args) -> int:
+    from .screen import cmd_screen as run_screen
+
+    return run_screen(args)
+
+
+def cmd_report(args) -> int:
+    from .report import cmd_report as run_report
+
+    return run_report(args)
 
 
 def cmd_keys(args) -> int:
