@@ -123,6 +123,9 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("pondsim: interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:  # output piped into e.g. `head`, which closed early
+        sys.stderr.close()
+        return 0
 
 
 def cmd_fit(args) -> int:

@@ -105,6 +105,7 @@ figcaption { font-size: .86rem; color: #222; margin-top: .3rem; }
 code { font-family: ui-monospace, "DejaVu Sans Mono", "Liberation Mono", Menlo, Consolas,
   monospace; font-size: .86em; overflow-wrap: anywhere; }
 table.fixed { table-layout: fixed; width: 100%; }
+table.fixed td { overflow-wrap: anywhere; }
 td.unit, td.nowrap { white-space: nowrap; }
 .end-text { margin-top: 2rem; font-size: .88rem; }
 hr.end { border: 0; border-top: 6px solid #000; margin: .3rem 0 0; }
@@ -115,6 +116,8 @@ hr.end { border: 0; border-top: 6px solid #000; margin: .3rem 0 0; }
   h2, h3, caption { break-after: avoid; }
   tr, figure, .card { break-inside: avoid; }
   th { background: #fff; }
+  table { font-size: 8pt; }
+  th, td { padding: 1px 3px; }
   .wide { overflow: visible; }
 }
 """

@@ -217,6 +217,11 @@ def _atomic_write(path: Path, write) -> Path:
     path.parent.mkdir(parents=True, exist_ok=True)
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
     os.close(fd)
+    # mkstemp makes the file private (0600); outputs are meant to be shared: use the
+    # permissions an ordinary file gets under the user's umask.
+    umask = os.umask(0)
+    os.umask(umask)
+    os.chmod(tmp, 0o666 & ~umask)
     try:
         write(tmp)
         os.replace(tmp, path)
