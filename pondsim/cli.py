@@ -258,9 +258,7 @@ def cmd_run(args) -> int:
 
 
 def _check_members(n):
-    if n is not None and not 1 <= n <= 1_000_000:
-        raise InputError(f"{n} is out of range; allowed: a whole number in [1, 1000000]",
-                         field="--members")
+    _check_count(n, "--members", high=1_000_000)
 
 
 def cmd_compare(args) -> int:
@@ -316,8 +314,8 @@ def cmd_compare(args) -> int:
 
 def _check_count(value, flag, high=100000):
     if value is not None and not 1 <= value <= high:
-        raise InputError(f"{value} is out of range; allowed: a whole number in [1, {high}]",
-                         field=flag)
+        raise InputError(f"{value} is out of range; allowed: a whole number in "
+                         f"[1, {high:d}]", field=flag)
 
 
 def cmd_outlook(args) -> int:
