@@ -16,10 +16,10 @@ Importing pondsim defines things and does nothing else.
 
 __version__ = "0.1.0"
 
-from .errors import InputError
-from .results import save
-from .scenario import Scenario, load_scenario
-from .simulate import simulate
+from pondsim.errors import InputError
+from pondsim.operations.simulate import simulate
+from pondsim.results.files import save
+from pondsim.scenario import Scenario, load_scenario
 
 
 def read_weather(path, **options):
@@ -27,9 +27,9 @@ def read_weather(path, **options):
 
     Columns and units are listed in :mod:`pondsim.glossary`; the file's metadata (site,
     format, what was filled or moved) is in ``DataFrame.attrs``. Options: see
-    :func:`pondsim.weather.read_weather`.
+    :func:`pondsim.forcing.weather.read_weather`.
     """
-    from .weather import read_weather as _read
+    from pondsim.forcing.weather import read_weather as _read
 
     table, meta = _read(path, **options)
     table.attrs.update(meta)
@@ -37,8 +37,8 @@ def read_weather(path, **options):
 
 
 def water_temperature(forcing, pond, **options):
-    """Hourly pond water temperature and energy budget; see :mod:`pondsim.thermal`."""
-    from .thermal import water_temperature as _wt
+    """Hourly pond water temperature and energy budget; see :mod:`pondsim.pond.thermal`."""
+    from pondsim.pond.thermal import water_temperature as _wt
 
     return _wt(forcing, pond, **options)
 

@@ -1,6 +1,6 @@
 """Allow ``python -m pondsim``."""
 
-from .cli import main
+from pondsim.cli import main
 
 if __name__ == "__main__":
     raise SystemExit(main())

@@ -11,7 +11,7 @@ import sys
 import time
 from pathlib import Path
 
-from .errors import InputError
+from pondsim.errors import InputError
 
 EXIT_INPUT = 2
 
@@ -97,9 +97,9 @@ def _parser() -> argparse.ArgumentParser:
     t.add_argument("--out", default=None, metavar="DIR",
                    help="output folder (default: out/<scenario name>-tune)")
 
-    from .calibrate import add_fit_parser
-    from .report import add_report_parser
-    from .screen import add_screen_parser
+    from pondsim.report.build import add_report_parser
+    from pondsim.studies.calibrate import add_fit_parser
+    from pondsim.studies.screen import add_screen_parser
 
     add_fit_parser(sub)
     add_screen_parser(sub)
@@ -129,25 +129,25 @@ def main(argv: list[str] | None = None) -> int:
 
 
 def cmd_fit(args) -> int:
-    from .calibrate import cmd_fit as run_fit
+    from pondsim.studies.calibrate import cmd_fit as run_fit
 
     return run_fit(args)
 
 
 def cmd_screen(args) -> int:
-    from .screen import cmd_screen as run_screen
+    from pondsim.studies.screen import cmd_screen as run_screen
 
     return run_screen(args)
 
 
 def cmd_report(args) -> int:
-    from .report import cmd_report as run_report
+    from pondsim.report.build import cmd_report as run_report
 
     return run_report(args)
 
 
 def cmd_keys(args) -> int:
-    from .scenario import schema_markdown
+    from pondsim.scenario import schema_markdown
 
     print(schema_markdown())
     return 0
@@ -155,15 +155,15 @@ def cmd_keys(args) -> int:
 
 def _forcing_for(args):
     """(forcing, meta, pond, scenario-or-None) for `pondsim weather`."""
-    from .scenario import SCHEMA, Pond, load_scenario
-    from .simulate import load_forcing
+    from pondsim.operations.simulate import load_forcing
+    from pondsim.scenario import SCHEMA, Pond, load_scenario
 
     source = Path(args.source)
     if source.suffix.lower() == ".toml":
         scenario = load_scenario(source)
         forcing, meta = load_forcing(scenario)
         return forcing, meta, scenario.pond, scenario
-    from .weather import read_weather
+    from pondsim.forcing.weather import read_weather
 
     forcing, meta = read_weather(source, latitude=args.latitude, longitude=args.longitude,
                                  elevation_m=args.elevation, utc_offset_h=args.utc_offset,
@@ -178,8 +178,9 @@ def _forcing_for(args):
 
 
 def cmd_weather(args) -> int:
-    from . import light, thermal
-    from .results import CAUTION, monthly_forcing_table
+    from pondsim.glossary import CAUTION
+    from pondsim.pond import light, thermal
+    from pondsim.results.tables import monthly_forcing_table
 
     forcing, meta, pond, scenario = _forcing_for(args)
     lt = scenario.light if scenario else None
@@ -206,7 +207,7 @@ def cmd_weather(args) -> int:
         print(f"; hours above the strain's t_max_c ({upper:g} degC): {hot}", end="")
     print("\n\n" + CAUTION)
     if args.plot:
-        from .plots import weather_figure
+        from pondsim.results.figures import weather_figure
 
         path = weather_figure(table, water, forcing, title, args.plot)
         print(f"\nfigure written: {path}")
@@ -214,9 +215,11 @@ def cmd_weather(args) -> int:
 
 
 def cmd_run(args) -> int:
-    from .results import CAUTION, policy_summary, save, write_csv
-    from .scenario import load_scenario
-    from .simulate import simulate
+    from pondsim.glossary import CAUTION
+    from pondsim.operations.simulate import simulate
+    from pondsim.results.files import save, write_csv
+    from pondsim.results.tables import policy_summary
+    from pondsim.scenario import load_scenario
 
     _check_members(args.members)
     scenario = load_scenario(args.scenario)
@@ -249,7 +252,7 @@ def cmd_run(args) -> int:
               "2008); check the strain parameters.")
     written = [out / "results.nc", out / "summary.csv"]
     if not args.no_plots:
-        from .plots import run_figures
+        from pondsim.results.figures import run_figures
 
         written += run_figures(ds, out)
     print("\nwritten: " + ", ".join(str(p) for p in written))
@@ -262,17 +265,18 @@ def _check_members(n):
 
 
 def cmd_compare(args) -> int:
-    from .compare import best_by_season, risk_calendar, season_table
-    from .results import CAUTION, save, write_csv
-    from .scenario import load_scenario
-    from .simulate import crash_model_of, simulate
+    from pondsim.glossary import CAUTION
+    from pondsim.operations.simulate import crash_model_of, simulate
+    from pondsim.results.files import save, write_csv
+    from pondsim.scenario import load_scenario
+    from pondsim.studies.compare import best_by_season, risk_calendar, season_table
 
     _check_members(args.members)
     scenario = load_scenario(args.scenario)
     members = args.members or max(scenario.run.members, 200)
     crash = crash_model_of(scenario)
     if crash is None:
-        from .crash import CrashModel
+        from pondsim.operations.crash import CrashModel
 
         crash = CrashModel()  # for the calendar only; no crashes are drawn
     out = Path(args.out) if args.out else Path("out") / f"{Path(args.scenario).stem}-compare"
@@ -303,7 +307,7 @@ def cmd_compare(args) -> int:
     if len(calendar):
         print("\nsteepest falls of K (risk calendar, median member X/K):")
         print(calendar.to_string(index=False, float_format=lambda v: f"{v:,.2f}"))
-    from .plots import compare_figures
+    from pondsim.results.figures import compare_figures
 
     written += compare_figures(ds, table, crash, out)
     print("\nwritten: " + ", ".join(str(p) for p in written))
@@ -319,10 +323,11 @@ def _check_count(value, flag, high=100000):
 
 
 def cmd_outlook(args) -> int:
-    from .inputs import bill_from_results
-    from .outlook import annual_table, monthly_bands, run_outlook, sensitivity
-    from .results import CAUTION, save, write_csv
-    from .scenario import load_scenario
+    from pondsim.glossary import CAUTION
+    from pondsim.results.files import save, write_csv
+    from pondsim.scenario import load_scenario
+    from pondsim.studies.inputs_bill import bill_from_results
+    from pondsim.studies.outlook import annual_table, monthly_bands, run_outlook, sensitivity
 
     _check_count(args.years, "--years")
     _check_count(args.draws, "--draws")
@@ -375,7 +380,7 @@ def cmd_outlook(args) -> int:
     print(f"\ninputs bill for '{best}' (farm, per year): biomass {yr['biomass_t']:,.1f} t, "
           f"CO2 {yr['co2_t']:,.1f} t, N {yr['n_t']:,.2f} t, P {yr['p_t']:,.2f} t, makeup "
           f"water {yr['makeup_water_m3']:,.0f} m3, mixing {yr['mixing_MWh']:,.1f} MWh")
-    from .plots import outlook_figures
+    from pondsim.results.figures import outlook_figures
 
     written += outlook_figures(ds, bands, sens, out)
     print("\nwritten: " + ", ".join(str(p) for p in written))
@@ -386,12 +391,13 @@ def cmd_outlook(args) -> int:
 
 
 def cmd_tune(args) -> int:
-    from .compare import best_by_season, season_table
-    from .outlook import weather_years
-    from .results import CAUTION, write_csv
-    from .scenario import load_scenario, relocate_text
-    from .simulate import simulate
-    from .tune import describe, tune_scenario, tuned_scenario_text, write_text
+    from pondsim.glossary import CAUTION
+    from pondsim.operations.simulate import simulate
+    from pondsim.results.files import write_csv
+    from pondsim.scenario import load_scenario, relocate_text
+    from pondsim.studies.compare import best_by_season, season_table
+    from pondsim.studies.outlook import weather_years
+    from pondsim.studies.tune import describe, tune_scenario, tuned_scenario_text, write_text
 
     _check_count(args.years, "--years")
     _check_members(args.members)

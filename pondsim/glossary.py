@@ -61,3 +61,13 @@ RESULTS = {
     "crashed": ("culture crash on this day", "1"),
     "status": ("pond status: 0 growing, 1 out of service (restart)", "1"),
 }
+
+#: Areal biomass conversion: 1 g m-2 = 10 kg ha-1 = 0.01 t ha-1.
+G_M2_TO_T_HA = 0.01
+
+CAUTION = (
+    "Results are estimates from a model, not guarantees of yield or cost. Weather, strain "
+    "behaviour, contamination and operations at a real site will differ. Open ponds hold "
+    "deep water, rotating paddlewheels, pressurised CO2 and cleaning chemicals: design, "
+    "build and operate them to local codes and permits, with licensed engineers."
+)

@@ -17,7 +17,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from .errors import InputError, did_you_mean
+from pondsim.errors import InputError, did_you_mean
 
 MONTHS = 12
 

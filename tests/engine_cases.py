@@ -4,9 +4,9 @@ from __future__ import annotations
 
 import numpy as np
 
-from pondsim import kinetics
-from pondsim.engine import HOURS_PER_DAY, Drivers, Operation
-from pondsim.harvest import HarvestRules
+from pondsim.operations.engine import HOURS_PER_DAY, Drivers, Operation
+from pondsim.operations.harvest import HarvestRules
+from pondsim.pond import kinetics
 
 
 def drivers(par, *, temp_factor=1.0, maintenance=0.0, capacity=1000.0, mu_max=1.0,

@@ -1,4 +1,4 @@
-"""Calibration from pilot-pond observations (pondsim.calibrate).
+"""Calibration from pilot-pond observations (pondsim.studies.calibrate).
 
 Outside references:
 - Carlson (1913) Biochem. Z. 57:313-334, yeast counts as analysed by Pearl (1927) Q. Rev.
@@ -13,7 +13,7 @@ Outside references:
   binomial distribution of the number covered.
 
 Synthetic pilots are made by make_demo_pilot, which grows the culture through
-pondsim.simulate.build_drivers (the yearly simulation's own driver code) rather than the
+pondsim.operations.simulate.build_drivers (the yearly simulation's own driver code) rather than the
 fit's PilotModel, so a recovery test also checks that the two build the same pond.
 """
 
@@ -29,9 +29,9 @@ import pandas as pd
 import pytest
 from scipy import stats
 
-from pondsim import calibrate as cal
 from pondsim.errors import InputError
 from pondsim.scenario import load_scenario
+from pondsim.studies import calibrate as cal
 
 ROOT = Path(__file__).resolve().parents[1]
 SCENARIO = ROOT / "scenarios" / "kestrel_flats.toml"

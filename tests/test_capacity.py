@@ -1,4 +1,4 @@
-"""Tests of pondsim.capacity: daily carrying capacity, K-drop index, monthly K table."""
+"""Tests of pondsim.pond.capacity: daily carrying capacity, K-drop index, monthly K table."""
 
 import time
 
@@ -9,9 +9,9 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.optimize import brentq
 
-from pondsim import capacity as cp
-from pondsim import kinetics as kn
 from pondsim.errors import InputError
+from pondsim.pond import capacity as cp
+from pondsim.pond import kinetics as kn
 
 HOURS = np.arange(24) + 0.5  # middle of each hour [h]
 STRAIN = dict(mu_max=1.4, param=250.0, k_biomass=0.2, k_background=3.0, depth_m=0.25)

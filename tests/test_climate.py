@@ -15,9 +15,9 @@ from weather_fixtures import (
     fao56_ra_mj_m2_d,
 )
 
-from pondsim import climate
 from pondsim.errors import InputError
-from pondsim.weather import REQUIRED_COLUMNS, read_weather
+from pondsim.forcing import climate
+from pondsim.forcing.weather import REQUIRED_COLUMNS, read_weather
 
 REPO = Path(__file__).resolve().parents[1]
 COLUMNS = list(REQUIRED_COLUMNS) + ["solar_zenith", "ghi_clear"]
@@ -137,7 +137,7 @@ def test_clearsky_humidity_and_pressure(clear):
 def test_fao56_pressure_table_values():
     # FAO-56 eq. 7 printed table: 101.3 / 90.0 / 79.8 kPa at 0 / 1000 / 2000 m
     # (REFERENCES.md, recomputed, half the last digit)
-    from pondsim.weather import pressure_from_elevation
+    from pondsim.forcing.weather import pressure_from_elevation
     for z, p in [(0, 101.3), (1000, 90.0), (2000, 79.8)]:
         assert pressure_from_elevation(z) / 1000 == pytest.approx(p, abs=0.05)
 
@@ -296,7 +296,7 @@ def test_cli_bad_normals_exit_2(tmp_path, capsys):
 
 
 def test_demo_site_file_is_reproducible(tmp_path):
-    # weather/README.md: python -m pondsim.climate weather/kestrel_flats_normals.toml
+    # weather/README.md: python -m pondsim.forcing.climate weather/kestrel_flats_normals.toml
     #   weather/kestrel_flats.epw --seed 2025 --match-monthly
     normals = REPO / "weather" / "kestrel_flats_normals.toml"
     shipped = REPO / "weather" / "kestrel_flats.epw"

@@ -19,9 +19,9 @@ import numpy as np
 import pytest
 from engine_cases import OPERATION, diurnal_par, diurnal_temp_factor, drivers, rules
 
-from pondsim.crash import CrashModel
-from pondsim.engine import STATUS_RESTARTING, check_closure, integrate
-from pondsim.harvest import RULE_CODES
+from pondsim.operations.crash import CrashModel
+from pondsim.operations.engine import STATUS_RESTARTING, check_closure, integrate
+from pondsim.operations.harvest import RULE_CODES
 
 
 def _stressed_case(n_days=60):
@@ -134,7 +134,7 @@ def test_self_shading_drop_on_dark_days_raises_hazard():
     dull = np.repeat(np.isin(np.arange(n_days), [10, 11, 12]), 24)
     par = np.where(dull, par * 0.15, par)
     ft, m = diurnal_temp_factor(n_days)
-    from pondsim.capacity import daily_carrying_capacity
+    from pondsim.pond.capacity import daily_carrying_capacity
 
     k = daily_carrying_capacity(par.reshape(n_days, 24), ft.reshape(n_days, 24),
                                 m.reshape(n_days, 24), mu_max=1.4, model="steele",

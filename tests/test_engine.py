@@ -18,9 +18,9 @@ import pytest
 from engine_cases import OPERATION, diurnal_par, diurnal_temp_factor, drivers, rules
 from scipy.integrate import solve_ivp
 
-from pondsim import kinetics
-from pondsim.engine import HOURS_PER_DAY, check_closure, integrate
-from pondsim.harvest import RULE_CODES
+from pondsim.operations.engine import HOURS_PER_DAY, check_closure, integrate
+from pondsim.operations.harvest import RULE_CODES
+from pondsim.pond import kinetics
 
 
 def test_logistic_constant_forcing_matches_closed_form():
@@ -72,7 +72,7 @@ def test_fixed_fraction_best_yield_is_surplus_production_maximum():
 
 
 def test_self_shading_settles_at_computed_capacity():
-    from pondsim.capacity import daily_carrying_capacity
+    from pondsim.pond.capacity import daily_carrying_capacity
 
     n_days = 80
     par = diurnal_par(n_days)
@@ -191,7 +191,7 @@ def test_late_start_keeps_pond_empty_until_inoculation():
 
 
 def test_ledger_catches_an_imbalance():
-    from pondsim.engine import LedgerError
+    from pondsim.operations.engine import LedgerError
 
     ledger = {k: np.array([1.0]) for k in ("inoculated", "grown", "respired", "removed",
                                            "lost", "final")}

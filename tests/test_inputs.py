@@ -1,4 +1,5 @@
-"""Tests for pondsim.inputs: stoichiometry, fertilisers, makeup water, raceway hydraulics,
+"""Tests for pondsim.studies.inputs_bill: stoichiometry, fertilisers, makeup water, raceway
+hydraulics,
 mixing power and the inputs bill."""
 
 from __future__ import annotations
@@ -10,8 +11,8 @@ import pandas as pd
 import pytest
 import xarray as xr
 
-from pondsim import inputs
 from pondsim.errors import InputError
+from pondsim.studies import inputs_bill as inputs
 
 # IUPAC/CIAAW 2021 abridged standard atomic weights, typed here independently of the module.
 H, C, N, O, P, CA = 1.008, 12.011, 14.007, 15.999, 30.974, 40.078

@@ -1,6 +1,6 @@
 """Invariants of the engine over random cases (hypothesis): density >= 0, harvest <= stock,
 the biomass ledger closes, and the engine's fast light kernels agree with the reference
-closed forms of pondsim.kinetics (Steele 1962; Monod/Tamiya), which are themselves checked
+closed forms of pondsim.pond.kinetics (Steele 1962; Monod/Tamiya), which are themselves checked
 against scipy quadrature in test_kinetics.py."""
 
 from __future__ import annotations
@@ -10,9 +10,9 @@ from engine_cases import OPERATION, diurnal_par, diurnal_temp_factor, drivers, r
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from pondsim import kinetics
-from pondsim.engine import FAST_DEPTH_MEANS, check_closure, integrate
-from pondsim.harvest import RULE_CODES
+from pondsim.operations.engine import FAST_DEPTH_MEANS, check_closure, integrate
+from pondsim.operations.harvest import RULE_CODES
+from pondsim.pond import kinetics
 
 
 @settings(max_examples=25, deadline=None)

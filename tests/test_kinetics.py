@@ -1,4 +1,4 @@
-"""Tests of pondsim.kinetics: light responses, depth averages, CTMI, maintenance."""
+"""Tests of pondsim.pond.kinetics: light responses, depth averages, CTMI, maintenance."""
 
 import warnings
 
@@ -6,8 +6,8 @@ import numpy as np
 import pytest
 from scipy.integrate import quad
 
-from pondsim import kinetics as kn
 from pondsim.errors import InputError
+from pondsim.pond import kinetics as kn
 
 # Grid of the depth-average checks: surface PAR [µmol m-2 s-1], attenuation [m-1],
 # depth [m]; optical depths from 0.005 to 150.

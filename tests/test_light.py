@@ -1,4 +1,4 @@
-"""Tests for pondsim.light: surface reflection and PAR at the culture surface."""
+"""Tests for pondsim.pond.light: surface reflection and PAR at the culture surface."""
 
 from __future__ import annotations
 
@@ -10,8 +10,8 @@ import pandas as pd
 import pvlib
 import pytest
 
-from pondsim import light
 from pondsim.errors import InputError
+from pondsim.pond import light
 
 ASTM_G173_CSV = os.path.join(os.path.dirname(pvlib.__file__), "data", "ASTMG173.csv")
 

@@ -24,8 +24,8 @@ import pandas as pd
 import pytest
 
 from pondsim import __version__
-from pondsim import report as rep
 from pondsim.errors import InputError
+from pondsim.report import build as rep
 from pondsim.scenario import SCHEMA, load_scenario, relocate_text
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -231,8 +231,9 @@ def test_rerun_reuses_results_and_page_differs_only_in_run_date(small_scenario, 
                                                                  page_text, monkeypatch):
     import importlib
 
-    outlook = importlib.import_module("pondsim.outlook")
-    simulate = importlib.import_module("pondsim.simulate")  # the module, not the function
+    outlook = importlib.import_module("pondsim.studies.outlook")
+    # the module, not the function
+    simulate = importlib.import_module("pondsim.operations.simulate")
 
     def no_simulation(*args, **kwargs):
         raise AssertionError("the report simulated again instead of reusing the results")

@@ -18,7 +18,7 @@ import xarray as xr
 
 from pondsim import load_scenario
 from pondsim.errors import InputError
-from pondsim.screen import (
+from pondsim.studies.screen import (
     add_screen_parser,
     cmd_screen,
     read_sites,

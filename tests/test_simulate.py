@@ -16,7 +16,7 @@ import pvlib
 import pytest
 
 from pondsim import load_scenario, simulate
-from pondsim.results import policy_summary
+from pondsim.results.tables import policy_summary
 from pondsim.scenario import parse_scenario
 
 PVLIB_DATA = Path(pvlib.__file__).parent / "data"

@@ -23,10 +23,10 @@ from scipy import stats
 
 from pondsim import load_scenario
 from pondsim.cli import main
-from pondsim.outlook import EXCEEDANCE, annual_table, run_outlook
 from pondsim.scenario import Season, relocate_text
-from pondsim.tune import Ensemble, tune_plan
-from pondsim.uncertainty import sample_draws, sobol
+from pondsim.studies.outlook import EXCEEDANCE, annual_table, run_outlook
+from pondsim.studies.tune import Ensemble, tune_plan
+from pondsim.studies.uncertainty import sample_draws, sobol
 
 ROOT = Path(__file__).resolve().parents[1]
 DEMO = ROOT / "scenarios" / "kestrel_flats.toml"
@@ -84,7 +84,7 @@ def test_no_variance_makes_p_values_coincide():
     quiet = scenario.replace(crash=dataclasses.replace(scenario.crash, enabled=False),
                              uncertainty=dataclasses.replace(scenario.uncertainty,
                                                              parameters=()))
-    from pondsim.simulate import load_forcing, simulate
+    from pondsim.operations.simulate import load_forcing, simulate
 
     forcing = load_forcing(quiet)
     ds = simulate(quiet, members=1, forcing=forcing, weather_years=[forcing[0]] * 3,

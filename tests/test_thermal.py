@@ -1,4 +1,4 @@
-"""Tests for pondsim.thermal: FAO-56 helpers, sky longwave and the pond energy balance."""
+"""Tests for pondsim.pond.thermal: FAO-56 helpers, sky longwave and the pond energy balance."""
 
 from __future__ import annotations
 
@@ -13,8 +13,8 @@ import pytest
 from pvlib import clearsky, iotools, solarposition
 from scipy import optimize
 
-from pondsim import thermal
 from pondsim.errors import InputError
+from pondsim.pond import thermal
 
 PVLIB_DATA = os.path.join(os.path.dirname(pvlib.__file__), "data")
 
@@ -28,7 +28,7 @@ def _pond(**kw):
 
 
 def _tmy3_forcing(name):
-    """Forcing from a pvlib-shipped TMY3 file, built here without pondsim.weather."""
+    """Forcing from a pvlib-shipped TMY3 file, built here without pondsim.forcing.weather."""
     data, meta = iotools.read_tmy3(os.path.join(PVLIB_DATA, name), coerce_year=2025,
                                    map_variables=True)
     # TMY3 labels the END of each hour; the contract labels the start.

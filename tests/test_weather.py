@@ -25,7 +25,7 @@ from weather_fixtures import (
 )
 
 from pondsim.errors import InputError
-from pondsim.weather import (
+from pondsim.forcing.weather import (
     REQUIRED_COLUMNS,
     read_weather,
     solar_position_midhour,
@@ -206,7 +206,7 @@ def test_epw_optional_column_with_long_gap_dropped(tmp_path):
 # --------------------------------------------------------------------------- write_epw
 @pytest.fixture(scope="module")
 def clearsky_table():
-    from pondsim.climate import clearsky_weather
+    from pondsim.forcing.climate import clearsky_weather
     return clearsky_weather(**DESERT_SITE, normals=DESERT_NORMALS, name="Dry, Basin")
 
 
@@ -240,7 +240,7 @@ def test_write_epw_is_atomic(tmp_path, clearsky_table, monkeypatch):
     def failing_replace(src, dst):
         raise OSError("disk full")
 
-    monkeypatch.setattr("pondsim.weather.os.replace", failing_replace)
+    monkeypatch.setattr("pondsim.forcing.weather.os.replace", failing_replace)
     with pytest.raises(OSError):
         write_epw(df, meta, target)
     assert target.read_text() == "old content\n"

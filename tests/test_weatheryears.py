@@ -14,9 +14,9 @@ import pandas as pd
 import pytest
 from weather_fixtures import TMY3_GREENSBORO
 
-from pondsim import weatheryears as wy
 from pondsim.errors import InputError
-from pondsim.weather import RANGES, REQUIRED_COLUMNS, read_weather
+from pondsim.forcing import years as wy
+from pondsim.forcing.weather import RANGES, REQUIRED_COLUMNS, read_weather
 
 REPO = Path(__file__).resolve().parents[1]
 N_YEARS = 200
@@ -198,7 +198,7 @@ def test_midnight_blending_removes_the_jump_and_keeps_the_rest(source):
         assert np.array_equal(blended.data[col][:, late], raw.data[col][:, late]), col
     assert blended.data["relative_humidity"].max() <= 100.0
     # RH follows at constant vapour pressure (FAO-56 eq. 11 via saturation_vapour_pressure)
-    from pondsim.weather import saturation_vapour_pressure as es
+    from pondsim.forcing.weather import saturation_vapour_pressure as es
     e_b = blended.data["relative_humidity"] * es(blended.data["temp_air"])
     e_r = raw.data["relative_humidity"] * es(raw.data["temp_air"])
     ok = blended.data["relative_humidity"] < 100.0
@@ -282,7 +282,7 @@ def test_bad_arguments_are_input_errors(source):
 def test_months_with_identical_days_do_not_break_the_classes():
     from weather_fixtures import DESERT_NORMALS, DESERT_SITE
 
-    from pondsim import climate
+    from pondsim.forcing import climate
     src, _ = climate.clearsky_weather(**DESERT_SITE, normals=DESERT_NORMALS)
     sy = wy.stack_years(src, 2, seed=1, blend_hours=0)
     # every day of a month has the same clearness in the source; the clear-sky rescaling

@@ -32,8 +32,9 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from .errors import InputError
-from .results import CAUTION, _atomic_write
+from pondsim.errors import InputError
+from pondsim.glossary import CAUTION
+from pondsim.results.files import atomic_write
 
 MANIFEST = "report_inputs.json"
 REPORT = "report.html"
@@ -181,7 +182,7 @@ def inputs_fingerprint(scenario, options: dict) -> dict:
     bytes (none in clear-sky mode), pondsim's version and the run options (canonical
     JSON), each part prefixed by its label and length so that parts cannot run together.
     """
-    from . import __version__
+    from pondsim import __version__
 
     if scenario.path is None:
         raise InputError("the report needs a scenario read from a file", field="scenario")
@@ -268,8 +269,8 @@ def monthly_drivers(ds) -> pd.DataFrame:
 def crash_months(ds) -> pd.DataFrame:
     """Per policy and month: expected crashes [per month], probability of at least one
     crash in the month [-], mean daily crash probability [%] and days at risk [d] (member
-    means; see :func:`pondsim.compare.at_risk`)."""
-    from .compare import at_risk
+    means; see :func:`pondsim.studies.compare.at_risk`)."""
+    from pondsim.studies.compare import at_risk
 
     month = ds["date"].dt.month
     crashes = ds["crashed"].astype(float).groupby(month).sum("day")  # (policy, member, m)
@@ -291,7 +292,7 @@ def crash_months(ds) -> pd.DataFrame:
 
 def _single_k_view(ds):
     """The ensemble with the day-by-day median K over members, for the figures and the
-    calendar of :mod:`pondsim.compare`, which take one K series."""
+    calendar of :mod:`pondsim.studies.compare`, which take one K series."""
     k = ds["carrying_capacity"]
     if "member" not in k.dims:
         return ds
@@ -304,7 +305,7 @@ def _single_k_view(ds):
 # The assumption table
 # ---------------------------------------------------------------------------------------
 
-#: Coefficients of the inputs bill (pondsim.inputs.InputsParams): unit and source.
+#: Coefficients of the inputs bill (pondsim.studies.inputs_bill.InputsParams): unit and source.
 BILL_PARAMETERS = {
     "carbon_fraction": ("kg C kg-1", "Carbon share of dry biomass, about 50 % (Chisti 2007, "
                         "Biotechnol. Adv. 25:294-306; from memory)."),
@@ -367,8 +368,9 @@ def assumption_table(scenario, *, options: dict, mixing: dict, bill_params: dict
     schema default (``note`` then holds the schema's doc text with its source or
     ASSUMPTION mark), and ``derived``, ``run option`` or ``model constant`` otherwise.
     """
-    from . import light, results
-    from .scenario import POLICY_KEYS, SCHEMA, UNCERTAINTY_KEYS
+    from pondsim.pond import light
+    from pondsim.results import tables as results
+    from pondsim.scenario import POLICY_KEYS, SCHEMA, UNCERTAINTY_KEYS
 
     with open(scenario.path, "rb") as fh:
         raw = tomllib.load(fh)
@@ -483,7 +485,7 @@ def _monthly_drivers_figure(drivers: pd.DataFrame, strain, path) -> Path:
     """Monthly PAR, water temperature and K with their P10-P90 bands over the ensemble."""
     import matplotlib.pyplot as plt
 
-    from .plots import COLORS, _save
+    from pondsim.results.figures import COLORS, _save
 
     months = drivers.index.to_numpy()
     labels = [pd.Timestamp(2000, int(m), 1).strftime("%b") for m in months]
@@ -521,13 +523,14 @@ def _monthly_drivers_figure(drivers: pd.DataFrame, strain, path) -> Path:
 def run_study(scenario, out_dir, fingerprint: dict) -> dict:
     """Run the study, write every table, the netCDF results and the figures into
     *out_dir*, and return the manifest (written last)."""
-    from .compare import best_by_season, risk_calendar, season_table
-    from .crash import CrashModel
-    from .inputs import bill_from_results
-    from .outlook import annual_table, monthly_bands, run_outlook, sensitivity
-    from .plots import compare_figures, outlook_figures
-    from .results import policy_summary, save, write_csv
-    from .simulate import crash_model_of
+    from pondsim.operations.crash import CrashModel
+    from pondsim.operations.simulate import crash_model_of
+    from pondsim.results.figures import compare_figures, outlook_figures
+    from pondsim.results.files import save, write_csv
+    from pondsim.results.tables import policy_summary
+    from pondsim.studies.compare import best_by_season, risk_calendar, season_table
+    from pondsim.studies.inputs_bill import bill_from_results
+    from pondsim.studies.outlook import annual_table, monthly_bands, run_outlook, sensitivity
 
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
@@ -591,7 +594,7 @@ def run_study(scenario, out_dir, fingerprint: dict) -> dict:
         "files": {name: _file_sha256(out / name) for name in names},
     }
     text = json.dumps(manifest, indent=2, sort_keys=True) + "\n"
-    _atomic_write(out / MANIFEST, lambda tmp: Path(tmp).write_text(text, encoding="utf-8"))
+    atomic_write(out / MANIFEST, lambda tmp: Path(tmp).write_text(text, encoding="utf-8"))
     return manifest
 
 
@@ -608,7 +611,7 @@ def _finite(v):
 # ---------------------------------------------------------------------------------------
 
 def read_table(path, index_col=None) -> pd.DataFrame:
-    """A CSV written by :func:`pondsim.results.write_csv` (leading caution comment)."""
+    """A CSV written by :func:`pondsim.results.files.write_csv` (leading caution comment)."""
     with open(path, encoding="utf-8") as fh:
         skip = 1 if fh.readline().startswith("#") else 0
     return pd.read_csv(path, skiprows=skip, index_col=index_col, keep_default_na=False,
@@ -701,7 +704,7 @@ def _section(index: int, body: list[str]) -> str:
 
 
 def _describe(scenario, name: str) -> str:
-    from .tune import describe
+    from pondsim.studies.tune import describe
 
     for p in scenario.policies:
         if p.name == name:
@@ -1017,7 +1020,7 @@ def _inputs(manifest: dict, bill) -> str:
 
 
 def _sensitivity(out: Path, scenario, manifest: dict, sens) -> str:
-    from .scenario import SCHEMA
+    from pondsim.scenario import SCHEMA
 
     if sens is None:
         return _p("Not computed: the scenario gives no strain parameter a distribution in "
@@ -1117,7 +1120,7 @@ METHODS = (
      "pondsim's model; parameters are ASSUMPTIONS"),
     ("Weather years", "Synthetic years resampled from the weather record (or the file's "
      "own real years); they spread the weather but hold no year worse than the record.",
-     "pondsim.weatheryears"),
+     "pondsim.forcing.years"),
     ("Parameter draws", "Latin hypercube sampling of the uncertain strain parameters.",
      "McKay, Beckman & Conover (1979) Technometrics 21:239–245"),
     ("Sensitivity", "First-order and total Sobol indices (Saltelli/Jansen estimators in "
@@ -1247,7 +1250,7 @@ def build_page(out_dir, scenario, manifest: dict, *, run_date: str | None = None
 def make_report(scenario_path, out_dir, *, years=None, draws=None, members=None, seed=None,
                 run_date: str | None = None) -> ReportRun:
     """Run (or reuse) the study for *scenario_path* in *out_dir* and write report.html."""
-    from .scenario import load_scenario
+    from pondsim.scenario import load_scenario
 
     scenario = load_scenario(scenario_path)
     options = resolve_options(scenario, years=years, draws=draws, members=members, seed=seed)
@@ -1258,7 +1261,7 @@ def make_report(scenario_path, out_dir, *, years=None, draws=None, members=None,
         manifest = run_study(scenario, out_dir, fingerprint)
     page = build_page(out_dir, scenario, manifest, run_date=run_date)
     path = Path(out_dir) / REPORT
-    _atomic_write(path, lambda tmp: Path(tmp).write_text(page, encoding="utf-8"))
+    atomic_write(path, lambda tmp: Path(tmp).write_text(page, encoding="utf-8"))
     return ReportRun(path=path, reused=reused, manifest=manifest)
 
 

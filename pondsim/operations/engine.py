@@ -22,8 +22,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from . import kinetics
-from .harvest import HarvestRules, removal_fraction
+from pondsim.operations.harvest import HarvestRules, removal_fraction
+from pondsim.pond import kinetics
 
 HOURS_PER_DAY = 24
 STEP_D = 1.0 / HOURS_PER_DAY  # one hour [d]
@@ -52,7 +52,7 @@ class Drivers:
     mu_max, light_param, k_biomass, k_background : ndarray, shape (f,)
         [d-1], [umol m-2 s-1], [m2 g-1], [m-1].
     light_model : str
-        Name in :data:`pondsim.kinetics.LIGHT_RESPONSES`.
+        Name in :data:`pondsim.pond.kinetics.LIGHT_RESPONSES`.
     growth_form : {"self_shading", "logistic"}
     depth_m : float [m]
     """
@@ -166,7 +166,7 @@ def _transmission(tau):
 def _steele_depth_mean_fast(i0, i_opt):
     """Steele's depth mean as a function of optical depth, for the engine's inner loop.
 
-    Same closed form as :func:`pondsim.kinetics.depth_averaged_response` (Steele 1962):
+    Same closed form as :func:`pondsim.pond.kinetics.depth_averaged_response` (Steele 1962):
     <f> = (e/tau)[exp(-a e^-tau) - exp(-a)], a = I0/Iopt, with the exponentials that
     depend on the state in single precision (see :func:`_transmission`) and the
     difference formed without cancellation: exp(-a) expm1(b), b = a(1 - e^-tau), by its
@@ -278,7 +278,7 @@ def integrate(drivers: Drivers, rules: HarvestRules, operation: Operation, *,
     operation : Operation
     set_of_member : ndarray of int, shape (n,), optional
         Driver set of each member; may be omitted when there is one set.
-    crash : pondsim.crash.CrashModel, optional
+    crash : pondsim.operations.crash.CrashModel, optional
         Daily crash hazard; None for no crashes.
     seed : int, optional
         Seed of the members' random streams (crash draws).

@@ -15,7 +15,7 @@ import numpy as np
 from scipy import stats
 from scipy.stats import qmc
 
-from .errors import InputError
+from pondsim.errors import InputError
 
 
 def frozen_distribution(u, centre: float):

@@ -8,18 +8,18 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 
-from . import capacity, kinetics, light, thermal
-from .crash import CrashModel
-from .engine import HOURS_PER_DAY, Drivers, Operation, integrate
-from .errors import InputError
-from .harvest import build_rules
-from .results import build_dataset
-from .scenario import Scenario
+from pondsim.errors import InputError
+from pondsim.operations.crash import CrashModel
+from pondsim.operations.dataset import build_dataset
+from pondsim.operations.engine import HOURS_PER_DAY, Drivers, Operation, integrate
+from pondsim.operations.harvest import build_rules
+from pondsim.pond import capacity, kinetics, light, thermal
+from pondsim.scenario import Scenario
 
 
 def load_forcing(scenario: Scenario):
     """Hourly forcing for the scenario's study year: ``(DataFrame, meta)``."""
-    from . import climate, weather
+    from pondsim.forcing import climate, weather
 
     site, w = scenario.site, scenario.weather
     if w.source == "file":
@@ -179,7 +179,7 @@ def simulate(scenario: Scenario, members: int | None = None, seed: int | None = 
         Forcing already read by :func:`load_forcing`.
     weather_years : list of DataFrame, optional
         Several forcing tables of the study year's calendar (e.g. from
-        :mod:`pondsim.weatheryears`); each becomes a weather year of the ensemble.
+        :mod:`pondsim.forcing.years`); each becomes a weather year of the ensemble.
     draws : dict of str -> ndarray, optional
         Strain parameter draws (see :func:`build_drivers`).
 
@@ -188,7 +188,7 @@ def simulate(scenario: Scenario, members: int | None = None, seed: int | None = 
     xarray.Dataset
         Dims ``(policy, member, day)``; members run over weather year × draw × crash
         replicate (coordinates ``weather_year``, ``draw``, ``replicate``); see
-        :func:`pondsim.results.build_dataset`.
+        :func:`pondsim.operations.dataset.build_dataset`.
     """
     reps = scenario.run.members if members is None else int(members)
     seed = scenario.run.seed if seed is None else int(seed)

@@ -1,4 +1,4 @@
-"""Engine benchmark: ``python -m pondsim.benchmark [SCENARIO] [--sizes 1 100 10000]``.
+"""Engine benchmark: ``python -m pondsim.benchmarks.engine [SCENARIO] [--sizes 1 100 10000]``.
 
 For each ensemble size, one year of hourly steps of the scenario (its forcing, water
 temperature and daily K solve included, computed once as the engine does), with a
@@ -18,11 +18,16 @@ from pathlib import Path
 
 import numpy as np
 
-from . import kinetics
-from .engine import HOURS_PER_DAY, integrate
-from .harvest import RULE_CODES, HarvestRules
-from .scenario import load_scenario
-from .simulate import build_drivers, hourly_light_and_water, load_forcing, operation_of
+from pondsim.operations.engine import HOURS_PER_DAY, integrate
+from pondsim.operations.harvest import RULE_CODES, HarvestRules
+from pondsim.operations.simulate import (
+    build_drivers,
+    hourly_light_and_water,
+    load_forcing,
+    operation_of,
+)
+from pondsim.pond import kinetics
+from pondsim.scenario import load_scenario
 
 DEMO = Path(__file__).resolve().parents[1] / "scenarios" / "kestrel_flats.toml"
 
@@ -115,7 +120,7 @@ def run(scenario_path=DEMO, sizes=(1, 100, 10_000), ivp_members: int = 10) -> di
 
 
 def main(argv=None) -> int:
-    p = argparse.ArgumentParser(prog="python -m pondsim.benchmark", description=__doc__,
+    p = argparse.ArgumentParser(prog="python -m pondsim.benchmarks.engine", description=__doc__,
                                 formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("scenario", nargs="?", default=str(DEMO))
     p.add_argument("--sizes", type=int, nargs="+", default=[1, 100, 10_000])

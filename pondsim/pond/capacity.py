@@ -14,8 +14,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from .errors import InputError
-from .kinetics import _depth_average_evaluator, _SteeleAverage, jassby_platt, monod
+from pondsim.errors import InputError
+from pondsim.pond.kinetics import _depth_average_evaluator, _SteeleAverage, jassby_platt, monod
 
 __all__ = [
     "daily_carrying_capacity",
@@ -196,7 +196,7 @@ def daily_net_growth_rate(x, par_hourly, temp_factor_hourly, maint_hourly, *, mu
     maint_hourly : array-like, shape (..., day, hour) [d-1]
         Maintenance loss rate of each step.
     mu_max, model, param, k_biomass, k_background, depth_m
-        As in :func:`pondsim.kinetics.specific_growth_self_shading`; ``k_biomass``,
+        As in :func:`pondsim.pond.kinetics.specific_growth_self_shading`; ``k_biomass``,
         ``k_background`` and ``depth_m`` must not vary within a day (give a member axis
         as shape ``(member, 1, 1)``).
 
@@ -224,14 +224,14 @@ def daily_carrying_capacity(par_hourly, temp_factor_hourly, maint_hourly, *, mu_
     par_hourly : array-like, shape (..., day, hour) [µmol m-2 s-1]
         PAR entering the culture. Leading axes (e.g. member) broadcast.
     temp_factor_hourly : array-like, shape (..., day, hour) [1]
-        Temperature factor f_T of each step (e.g. :func:`pondsim.kinetics.ctmi`).
+        Temperature factor f_T of each step (e.g. :func:`pondsim.pond.kinetics.ctmi`).
     maint_hourly : array-like, shape (..., day, hour) [d-1]
         Maintenance loss rate of each step (e.g.
-        :func:`pondsim.kinetics.maintenance_rate`), acting day and night.
+        :func:`pondsim.pond.kinetics.maintenance_rate`), acting day and night.
     mu_max : array-like [d-1]
         Maximum specific growth rate.
     model : str or callable
-        Light-response model (see :func:`pondsim.kinetics.light_response`).
+        Light-response model (see :func:`pondsim.pond.kinetics.light_response`).
     param : array-like [µmol m-2 s-1]
         The model's light parameter (numeric).
     k_biomass : array-like [m2 g-1]

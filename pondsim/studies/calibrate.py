@@ -2,7 +2,7 @@
 
 A pilot pond gives dated density samples, the harvests that were made, and perhaps the
 water temperature and the light. :func:`fit_pilot` finds the strain parameters that make
-the *same* hourly engine as the yearly simulation (:func:`pondsim.engine.integrate`)
+the *same* hourly engine as the yearly simulation (:func:`pondsim.operations.engine.integrate`)
 reproduce those samples, by weighted nonlinear least squares on log density; it reports
 standard errors, 95 % intervals, correlations, residual diagnostics and warnings for
 parameters the data cannot pin down. :func:`fit_logistic_curve` fits the closed-form
@@ -34,7 +34,7 @@ How the pilot is simulated
   most common (rounded) hour of the samples; date-only times are taken as sampled one hour
   before the harvest hour. Samples more than an hour away from it are counted in a note.
 * Harvests happen at the scenario's harvest hour (``harvest.hour``) on their date, as a
-  :class:`~pondsim.harvest.HarvestRules` table with one period per day: the observed
+  :class:`~pondsim.operations.harvest.HarvestRules` table with one period per day: the observed
   fraction on event days and nothing on other days. A sample taken at the harvest hour is
   taken after that harvest (the engine's rule).
 * The initial condition ``x0_g_m3`` is the density at the harvest hour of the first
@@ -44,7 +44,8 @@ How the pilot is simulated
   engine call. The hours of that day before the reset are treated as dark; the state is a
   single density, so what happens before the reset cannot matter.
 * Light and water temperature come from the scenario's forcing for the observation dates
-  (:func:`pondsim.simulate.load_forcing`, :func:`pondsim.simulate.hourly_light_and_water`).
+  (:func:`pondsim.operations.simulate.load_forcing`,
+  :func:`pondsim.operations.simulate.hourly_light_and_water`).
   Observed water temperatures correct the modelled hourly profile of their day by the
   observed-minus-modelled offset, interpolated across the day's readings (one reading
   shifts the whole day; hourly readings replace it). Observed PAR replaces the modelled
@@ -82,10 +83,10 @@ import numpy as np
 import pandas as pd
 from scipy import optimize, stats
 
-from . import kinetics
-from .engine import HOURS_PER_DAY, STEP_D, Drivers, Operation, integrate
-from .errors import InputError, did_you_mean
-from .harvest import RULE_CODES, HarvestRules
+from pondsim.errors import InputError, did_you_mean
+from pondsim.operations.engine import HOURS_PER_DAY, STEP_D, Drivers, Operation, integrate
+from pondsim.operations.harvest import RULE_CODES, HarvestRules
+from pondsim.pond import kinetics
 
 __all__ = [
     "DEMO_SEED",
@@ -476,10 +477,10 @@ def parse_observations(frame: pd.DataFrame, *, path=None, columns: dict | None =
 def pilot_hourly(scenario, year: int | None = None) -> pd.DataFrame:
     """Hourly PAR and water temperature of the scenario's forcing for *year*.
 
-    Returns the table of :func:`pondsim.simulate.hourly_light_and_water` with a naive
+    Returns the table of :func:`pondsim.operations.simulate.hourly_light_and_water` with a naive
     (local standard time) index.
     """
-    from .simulate import hourly_light_and_water, load_forcing
+    from pondsim.operations.simulate import hourly_light_and_water, load_forcing
 
     if year is not None and year != scenario.year:
         scenario = scenario.replace(year=int(year))
@@ -1264,8 +1265,8 @@ def write_fitted_scenario(fit: PilotFit, scenario_path, out_path) -> Path:
     """
     import tomllib
 
-    from .results import _atomic_write
-    from .scenario import UNCERTAIN_PARAMETERS, parse_scenario
+    from pondsim.results.files import atomic_write
+    from pondsim.scenario import UNCERTAIN_PARAMETERS, parse_scenario
 
     scenario_path = Path(scenario_path)
     out_path = Path(out_path)
@@ -1326,14 +1327,14 @@ def write_fitted_scenario(fit: PilotFit, scenario_path, out_path) -> Path:
     def write(tmp):
         Path(tmp).write_text(new_text, encoding="utf-8")
 
-    return _atomic_write(out_path, write)
+    return atomic_write(out_path, write)
 
 
 def plot_fit(fit: PilotFit, path) -> Path:
     """Observed and fitted density with harvests marked, and the log residuals (PNG)."""
     from matplotlib.figure import Figure
 
-    from .results import _atomic_write
+    from pondsim.results.files import atomic_write
 
     m = fit.model
     est = fit.table["estimate"].to_numpy()
@@ -1359,13 +1360,13 @@ def plot_fit(fit: PilotFit, path) -> Path:
     axr.set_ylabel("residual ln(obs/model) [-]")
     axr.set_xlabel("date (local standard time)")
     fig.autofmt_xdate()
-    return _atomic_write(Path(path), lambda tmp: fig.savefig(tmp, dpi=110, format="png"))
+    return atomic_write(Path(path), lambda tmp: fig.savefig(tmp, dpi=110, format="png"))
 
 
 def _plot_curve(t, n, fit: CurveFit, path, time_unit, density_unit) -> Path:
     from matplotlib.figure import Figure
 
-    from .results import _atomic_write
+    from pondsim.results.files import atomic_write
 
     fig = Figure(figsize=(8.0, 5.5), layout="constrained")
     ax, axr = fig.subplots(2, 1, sharex=True, height_ratios=[3, 1.4])
@@ -1379,7 +1380,7 @@ def _plot_curve(t, n, fit: CurveFit, path, time_unit, density_unit) -> Path:
     axr.plot(t, fit.residuals, "o-", ms=3, lw=0.6, color="#1e8449")
     axr.set_ylabel(f"residual [{density_unit}]")
     axr.set_xlabel(f"time since first sample [{time_unit}]")
-    return _atomic_write(Path(path), lambda tmp: fig.savefig(tmp, dpi=110, format="png"))
+    return atomic_write(Path(path), lambda tmp: fig.savefig(tmp, dpi=110, format="png"))
 
 
 # --------------------------------------------------------------------------------------
@@ -1392,8 +1393,8 @@ def make_demo_pilot(scenario, *, start: str = "2025-03-20", days: int = 45,
     """An invented pilot record: the scenario's own simulation plus lognormal noise.
 
     The culture is inoculated at the scenario's inoculum density at 00:00 on *start* and
-    simulated with :func:`pondsim.simulate.build_drivers` (the yearly simulation's
-    drivers) and :func:`pondsim.engine.integrate`, harvesting *harvest_fraction* of the
+    simulated with :func:`pondsim.operations.simulate.build_drivers` (the yearly simulation's
+    drivers) and :func:`pondsim.operations.engine.integrate`, harvesting *harvest_fraction* of the
     volume at the scenario's harvest hour on the given day numbers (0 = *start*). Each
     day's sample is the density at *sample_hour* times exp(σ ε), ε ~ N(0, 1),
     σ = sqrt(ln(1 + cv²)) (a lognormal error with coefficient of variation *noise_cv*),
@@ -1403,7 +1404,7 @@ def make_demo_pilot(scenario, *, start: str = "2025-03-20", days: int = 45,
     Returns a DataFrame with columns time, density_g_m3, harvest_fraction,
     water_temperature_c.
     """
-    from .simulate import build_drivers
+    from pondsim.operations.simulate import build_drivers
 
     start_ts = pd.Timestamp(start)
     if hourly is None:
@@ -1436,8 +1437,8 @@ def make_demo_pilot(scenario, *, start: str = "2025-03-20", days: int = 45,
 
 def write_demo_pilot(path, scenario_path="scenarios/kestrel_flats.toml", **kwargs) -> Path:
     """Write :func:`make_demo_pilot` of a scenario to a CSV file (atomically)."""
-    from .results import _atomic_write
-    from .scenario import load_scenario
+    from pondsim.results.files import atomic_write
+    from pondsim.scenario import load_scenario
 
     scenario = load_scenario(scenario_path)
     frame = make_demo_pilot(scenario, **kwargs)
@@ -1445,12 +1446,12 @@ def write_demo_pilot(path, scenario_path="scenarios/kestrel_flats.toml", **kwarg
 
     def write(tmp):
         with open(tmp, "w", encoding="utf-8", newline="") as fh:
-            fh.write(f"# INVENTED pilot-pond record: made by pondsim.calibrate."
+            fh.write(f"# INVENTED pilot-pond record: made by pondsim.studies.calibrate."
                      f"make_demo_pilot from {Path(scenario_path).name} (seed {seed}); "
                      "not a measurement. See scenarios/README_pilot.md\n")
             frame.to_csv(fh, index=False)
 
-    return _atomic_write(Path(path), write)
+    return atomic_write(Path(path), write)
 
 
 # --------------------------------------------------------------------------------------
@@ -1505,7 +1506,7 @@ def add_fit_parser(subparsers) -> argparse.ArgumentParser:
 
 
 def _cmd_curve(args, out: Path) -> int:
-    from .results import _atomic_write
+    from pondsim.results.files import atomic_write
 
     path = Path(args.observations)
     if not path.is_file():
@@ -1531,9 +1532,9 @@ def _cmd_curve(args, out: Path) -> int:
     text = fit.report(time_unit=unit, density_unit="g m-3")
     print(text)
     out.mkdir(parents=True, exist_ok=True)
-    written = [_atomic_write(out / "fit_parameters.csv",
+    written = [atomic_write(out / "fit_parameters.csv",
                              lambda tmp: fit.table.to_csv(tmp, float_format="%.6g")),
-               _atomic_write(out / "fit_report.txt",
+               atomic_write(out / "fit_report.txt",
                              lambda tmp: Path(tmp).write_text(text + "\n", encoding="utf-8"))]
     if not getattr(args, "no_plots", False):
         written.append(_plot_curve(t, obs.density_g_m3, fit, out / "fit.png", unit, "g m-3"))
@@ -1549,8 +1550,8 @@ def cmd_fit(args) -> int:
     ``sample_hour``, ``time_unit``, ``no_plots``. Returns the exit status (0); bad input
     raises :class:`InputError`.
     """
-    from .results import _atomic_write
-    from .scenario import load_scenario
+    from pondsim.results.files import atomic_write
+    from pondsim.scenario import load_scenario
 
     obs_path = Path(args.observations)
     out = Path(args.out) if getattr(args, "out", None) else \
@@ -1580,11 +1581,11 @@ def cmd_fit(args) -> int:
                            "fitted_g_m3": fit.fitted, "residual_ln": fit.residuals})
     table = fit.table.copy()
     written = [
-        _atomic_write(out / "fit_parameters.csv",
+        atomic_write(out / "fit_parameters.csv",
                       lambda tmp: table.to_csv(tmp, float_format="%.6g")),
-        _atomic_write(out / "fit_series.csv",
+        atomic_write(out / "fit_series.csv",
                       lambda tmp: series.to_csv(tmp, index=False, float_format="%.6g")),
-        _atomic_write(out / "fit_report.txt",
+        atomic_write(out / "fit_report.txt",
                       lambda tmp: Path(tmp).write_text(text + "\n", encoding="utf-8")),
         write_fitted_scenario(fit, args.scenario,
                               out / f"{Path(args.scenario).stem}_fitted.toml"),

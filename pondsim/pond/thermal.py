@@ -31,7 +31,7 @@ import numpy as np
 import pandas as pd
 
 from pondsim.errors import InputError
-from pondsim.light import WATER_REFRACTIVE_INDEX, transmitted_shortwave
+from pondsim.pond.light import WATER_REFRACTIVE_INDEX, transmitted_shortwave
 
 #: Stefan-Boltzmann constant [W m-2 K-4] (CODATA 2018).
 STEFAN_BOLTZMANN = 5.670374419e-8
@@ -65,9 +65,9 @@ _DEPTH_RANGE_M = (0.05, 1.0)
 _MIN_COUPLING = 1e-3  # W m-2 K-1, guards the exponential weights against a = 0
 
 
-# FAO-56 vapour-pressure and pressure relations live in pondsim.psychrometry (shared with
+# FAO-56 vapour-pressure and pressure relations live in pondsim.forcing.psychrometry (shared with
 # the weather readers); they are re-exported here for the thermal stage's users.
-from .psychrometry import (  # noqa: E402, F401
+from pondsim.forcing.psychrometry import (  # noqa: E402, F401
     pressure_from_elevation,
     psychrometric_constant,
     saturation_vapour_pressure,

@@ -1,7 +1,7 @@
 """Clear-sky site mode: hourly forcing from monthly climate normals, for a site with no
 weather file.
 
-Two generators return the same table as :func:`pondsim.weather.read_weather`:
+Two generators return the same table as :func:`pondsim.forcing.weather.read_weather`:
 
 * :func:`clearsky_weather` — every day of a month alike: Ineichen clear-sky GHI scaled
   to the month's clearness, Parton & Logan (1981) diurnal air temperature through the
@@ -11,7 +11,7 @@ Two generators return the same table as :func:`pondsim.weather.read_weather`:
   Aguiar, Collares-Pereira & Conde (1988), and daily temperature anomalies tied to the
   day's cloudiness with AR(1) persistence, in the manner of Richardson (1981).
 
-``python -m pondsim.climate NORMALS.toml OUT.epw [--seed N]`` writes an EPW file from a
+``python -m pondsim.forcing.climate NORMALS.toml OUT.epw [--seed N]`` writes an EPW file from a
 TOML file with a ``[site]`` and a ``[normals]`` table (see ``weather/README.md``).
 """
 
@@ -29,7 +29,7 @@ import pandas as pd
 import pvlib
 
 from pondsim.errors import InputError, did_you_mean
-from pondsim.weather import (
+from pondsim.forcing.weather import (
     DERIVED_COLUMNS,
     REQUIRED_COLUMNS,
     clearsky_ghi_midhour,
@@ -371,7 +371,7 @@ def clearsky_weather(*, latitude, longitude, elevation_m, utc_offset_h, normals,
     Returns
     -------
     data, meta
-        Same columns and conventions as :func:`pondsim.weather.read_weather`, with no
+        Same columns and conventions as :func:`pondsim.forcing.weather.read_weather`, with no
         ``precipitation`` or ``ir_horizontal``.
 
     Notes
@@ -595,9 +595,9 @@ def _load_normals_toml(path: Path):
 
 
 def main(argv=None) -> int:
-    """``python -m pondsim.climate NORMALS.toml OUT.epw [--seed N] [--year Y]``."""
+    """``python -m pondsim.forcing.climate NORMALS.toml OUT.epw [--seed N] [--year Y]``."""
     parser = argparse.ArgumentParser(
-        prog="python -m pondsim.climate",
+        prog="python -m pondsim.forcing.climate",
         description="Write an hourly EPW weather file from monthly climate normals: "
                     "clear-sky mode, or synthetic day-to-day weather with --seed.")
     parser.add_argument("normals", type=Path, help="TOML file with [site] and [normals]")

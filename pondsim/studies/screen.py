@@ -2,9 +2,9 @@
 and crash replicates per site, serially, on a local process pool or on a dask cluster.
 
 Each site is one task. A task reads (or builds) the site's typical year, draws
-``n_years`` synthetic weather years from it (:func:`pondsim.weatheryears.generate_years`),
+``n_years`` synthetic weather years from it (:func:`pondsim.forcing.years.generate_years`),
 simulates every policy and plan with ``members`` crash replicates per weather year
-(:func:`pondsim.simulate.simulate`) and REDUCES the daily results to a few summary
+(:func:`pondsim.operations.simulate.simulate`) and REDUCES the daily results to a few summary
 variables in the worker (:func:`reduce_site`), so only a few kilobytes per site travel
 back and the memory of the client stays bounded whatever the number of sites. Results
 stream back as tasks finish; each is written at once to ``OUT/sites/<site>.nc`` and the
@@ -16,7 +16,7 @@ Sites
 
 * a **folder of weather files** — every ``*.epw``, ``*.csv``, ``*.tm2``, ``*.json`` in
   it (not in subfolders, hidden files skipped) is one site, named by the file's stem and
-  located by the coordinates in the file (any format :func:`pondsim.weather.read_weather`
+  located by the coordinates in the file (any format :func:`pondsim.forcing.weather.read_weather`
   reads with ``fmt='auto'``); or
 * a **site table** (CSV, ``#`` comment lines allowed), one row per site:
 
@@ -41,7 +41,7 @@ Sites
 
   A row with ``weather_file`` reads that file (its coordinates, where given in the row,
   override the file's). A row without it uses clear-sky mode
-  (:func:`pondsim.climate.clearsky_weather`) from its monthly normals, and then needs the
+  (:func:`pondsim.forcing.climate.clearsky_weather`) from its monthly normals, and then needs the
   four coordinates and all twelve months of every normal. A row with neither, or with
   both, is an :class:`~pondsim.errors.InputError` naming the row. See
   ``scenarios/sites_demo.csv`` (invented sites).
@@ -112,9 +112,10 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 
-from .errors import InputError, did_you_mean
-from .results import CAUTION, G_M2_TO_T_HA, save, write_csv
-from .scenario import SCHEMA, Scenario, Site
+from pondsim.errors import InputError, did_you_mean
+from pondsim.glossary import CAUTION, G_M2_TO_T_HA
+from pondsim.results.files import save, write_csv
+from pondsim.scenario import SCHEMA, Scenario, Site
 
 #: Weather-file extensions picked up from a sites folder.
 WEATHER_SUFFIXES = (".epw", ".csv", ".tm2", ".json")
@@ -270,7 +271,7 @@ def _site_from_row(row: dict, i: int, path: Path) -> SiteSpec:
             bad = next(m for m, v in enumerate(values) if not _is_number(v))
             raise InputError(f"{values[bad]!r} is not a number", path=path,
                              field=f"{where}: {stem}_{bad + 1:02d}") from None
-    from .climate import validate_normals
+    from pondsim.forcing.climate import validate_normals
 
     try:
         validate_normals(normals)
@@ -358,8 +359,8 @@ def run_site(task: SiteTask) -> SiteOutcome:
 
 
 def _simulate_site(task: SiteTask) -> xr.Dataset:
-    from .simulate import load_forcing, simulate
-    from .weatheryears import generate_years
+    from pondsim.forcing.years import generate_years
+    from pondsim.operations.simulate import load_forcing, simulate
 
     scenario = task.scenario
     forcing, meta = load_forcing(scenario)
@@ -390,7 +391,7 @@ def reduce_site(ds: xr.Dataset, *, name: str, source: str = "", notes=()) -> xr.
     Parameters
     ----------
     ds : xarray.Dataset
-        From :func:`pondsim.simulate.simulate` (dims policy, member, day).
+        From :func:`pondsim.operations.simulate.simulate` (dims policy, member, day).
     name : str
         Site name (the ``site`` coordinate).
 
@@ -476,7 +477,7 @@ class ScreenReport:
 
 
 def _fingerprint(scenario: Scenario, site: SiteSpec, members, n_years, seed, full) -> str:
-    from . import __version__
+    from pondsim import __version__
 
     # Not the row number or file the site was declared in: a resumed run may add rows.
     parts = [repr(scenario), repr(dataclasses.replace(site, origin="")), members, n_years,
@@ -766,7 +767,7 @@ def combine(parts: Sequence[xr.Dataset], scenario: Scenario) -> xr.Dataset:
 
 
 def _version() -> str:
-    from . import __version__
+    from pondsim import __version__
 
     return __version__
 
@@ -834,7 +835,7 @@ def screen_figure(ranking: pd.DataFrame, path) -> Path:
     """Ranked horizontal bars of P50 with the P50-P90 spread, and P50 against latitude."""
     import matplotlib.pyplot as plt
 
-    from .plots import COLORS, _save
+    from pondsim.results.figures import COLORS, _save
 
     ok = ranking[ranking["status"] == "ok"]
     n = len(ok)
@@ -903,7 +904,7 @@ def add_screen_parser(subparsers):
 def cmd_screen(args) -> int:
     """``pondsim screen``: 0 when every site ran, 1 when some failed (2: input error,
     raised as InputError for the CLI to print)."""
-    from .scenario import load_scenario
+    from pondsim.scenario import load_scenario
 
     scenario = load_scenario(args.scenario)
     out = Path(args.out) if args.out else Path("out") / f"{Path(args.scenario).stem}-screen"

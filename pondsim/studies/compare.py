@@ -1,7 +1,7 @@
 """Policy comparison by season: yields with their spread over members, harvests, crash
 risk, and the best policy per season under the scenario's risk limit.
 
-All functions read a results Dataset (see :mod:`pondsim.results`); none simulates.
+All functions read a results Dataset (see :mod:`pondsim.results.files`); none simulates.
 """
 
 from __future__ import annotations
@@ -10,8 +10,8 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 
-from .crash import CrashModel
-from .results import G_M2_TO_T_HA
+from pondsim.glossary import G_M2_TO_T_HA
+from pondsim.operations.crash import CrashModel
 
 
 def at_risk(ds: xr.Dataset) -> xr.DataArray:

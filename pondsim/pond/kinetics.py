@@ -20,7 +20,7 @@ from functools import lru_cache
 
 import numpy as np
 
-from .errors import InputError, did_you_mean
+from pondsim.errors import InputError, did_you_mean
 
 __all__ = [
     "LIGHT_RESPONSES",

@@ -11,10 +11,10 @@ import numpy as np
 import pandas as pd
 import xarray as xr
 
-from .errors import InputError
-from .results import G_M2_TO_T_HA
-from .simulate import load_forcing, simulate
-from .uncertainty import distributions, sample_draws, sobol
+from pondsim.errors import InputError
+from pondsim.glossary import G_M2_TO_T_HA
+from pondsim.operations.simulate import load_forcing, simulate
+from pondsim.studies.uncertainty import distributions, sample_draws, sobol
 
 EXCEEDANCE = {"P50": 0.50, "P75": 0.25, "P90": 0.10}  # name -> quantile
 
@@ -22,8 +22,8 @@ EXCEEDANCE = {"P50": 0.50, "P75": 0.25, "P90": 0.10}  # name -> quantile
 def weather_years(scenario, n_years: int, seed: int):
     """Forcing tables for the outlook: the file's own complete years when it holds
     several real years, else ``n_years`` synthetic years resampled from the typical year
-    (:func:`pondsim.weatheryears.generate_years`). Returns ``(tables, meta)``."""
-    from .weatheryears import generate_years
+    (:func:`pondsim.forcing.years.generate_years`). Returns ``(tables, meta)``."""
+    from pondsim.forcing.years import generate_years
 
     table, meta = load_forcing(scenario)
     real = _real_years(scenario)
@@ -39,8 +39,8 @@ def _real_years(scenario):
     year's calendar (Feb 29 dropped or copied from Feb 28), or None."""
     if scenario.weather.source != "file":
         return None
-    from .weather import read_weather
-    from .weatheryears import split_years
+    from pondsim.forcing.weather import read_weather
+    from pondsim.forcing.years import split_years
 
     site = scenario.site
     table, meta = read_weather(scenario.weather.path, fmt=scenario.weather.format,

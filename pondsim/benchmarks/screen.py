@@ -1,7 +1,7 @@
 """Benchmark of site screening: sites per minute serially, on the local process pool and
 on a dask.distributed LocalCluster, the speed-up and the per-task overhead.
 
-``python -m pondsim.benchmark_screen [--sites 20] [--years 20] [--members 1]
+``python -m pondsim.benchmarks.screen [--sites 20] [--years 20] [--members 1]
 [--workers 2] [--no-cluster]``
 
 The workload is the demo scenario's first three harvest policies (no season plans) at
@@ -39,7 +39,7 @@ def _noop(i):
 def benchmark_sites(n_sites: int):
     """``n_sites`` invented clear-sky sites: the demo table's normals sites, shifted in
     latitude by whole degrees so that no two are the same."""
-    from .screen import read_sites
+    from pondsim.studies.screen import read_sites
 
     base = [s for s in read_sites(DEMO_SITES) if s.normals is not None]
     sites = []
@@ -75,10 +75,10 @@ def _noop_round_trip_dask(client, n: int = 50) -> float:
 
 
 def main(argv=None) -> int:
-    from .scenario import load_scenario
-    from .screen import screen
+    from pondsim.scenario import load_scenario
+    from pondsim.studies.screen import screen
 
-    ap = argparse.ArgumentParser(prog="python -m pondsim.benchmark_screen",
+    ap = argparse.ArgumentParser(prog="python -m pondsim.benchmarks.screen",
                                  description=__doc__.split("\n\n")[0])
     ap.add_argument("--sites", type=int, default=20)
     ap.add_argument("--years", type=int, default=20)

@@ -13,7 +13,8 @@ import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 import pandas as pd  # noqa: E402
 
-from .results import CAUTION, G_M2_TO_T_HA, _atomic_write  # noqa: E402
+from pondsim.glossary import CAUTION, G_M2_TO_T_HA  # noqa: E402
+from pondsim.results.files import atomic_write  # noqa: E402
 
 STYLES = ["-", "--", "-.", ":"]
 COLORS = ["#1b4f72", "#b9770e", "#1e8449", "#7d3c98", "#a93226", "#5d6d7e"]
@@ -34,7 +35,7 @@ def _save(fig, path) -> Path:
     fig.text(0.995, 0.998, "pondsim estimates, not guarantees", fontsize=7, color="0.4",
              ha="right", va="top")
     path = Path(path)
-    out = _atomic_write(path, lambda tmp: fig.savefig(tmp, dpi=110, format="png"))
+    out = atomic_write(path, lambda tmp: fig.savefig(tmp, dpi=110, format="png"))
     plt.close(fig)
     return out
 

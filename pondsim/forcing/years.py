@@ -44,7 +44,7 @@ import numpy as np
 import pandas as pd
 
 from pondsim.errors import InputError
-from pondsim.weather import (
+from pondsim.forcing.weather import (
     DERIVED_COLUMNS,
     clearsky_ghi_midhour,
     saturation_vapour_pressure,
@@ -95,7 +95,7 @@ def _check_table(forcing, what="forcing"):
     missing = [c for c in ("ghi", "ghi_clear", "temp_air") if c not in forcing.columns]
     if missing:
         raise InputError(f"forcing table lacks column {missing[0]} (read it with "
-                         "pondsim.weather.read_weather)", field=missing[0])
+                         "pondsim.forcing.weather.read_weather)", field=missing[0])
     if len(idx) and not (idx.is_monotonic_increasing and idx.is_unique):
         raise InputError("the forcing index must be unique and increasing", field="time")
 
@@ -114,7 +114,7 @@ def split_years(forcing: pd.DataFrame) -> list[pd.DataFrame]:
     Parameters
     ----------
     forcing : pandas.DataFrame
-        Hourly forcing table (:func:`pondsim.weather.read_weather`): tz-aware hour-start
+        Hourly forcing table (:func:`pondsim.forcing.weather.read_weather`): tz-aware hour-start
         index in local standard time.
 
     Returns
@@ -499,7 +499,7 @@ def stack_years(forcing, n_years: int, *, seed: int, n_classes: int = 3, year=No
     Parameters
     ----------
     forcing : pandas.DataFrame or list of DataFrame
-        Source forcing (:func:`pondsim.weather.read_weather`): one typical year, a table
+        Source forcing (:func:`pondsim.forcing.weather.read_weather`): one typical year, a table
         of several whole calendar years, or a list of such tables; all source years are
         pooled (see :func:`split_years`).
     n_years : int

@@ -33,7 +33,7 @@ import numpy as np
 import pandas as pd
 
 from pondsim.errors import InputError, did_you_mean
-from pondsim.thermal import WATER_DENSITY
+from pondsim.pond.thermal import WATER_DENSITY
 
 # ---------------------------------------------------------------------------------------
 # Constants
@@ -476,7 +476,7 @@ def makeup_water(evaporation_mm, rain_mm, area_m2, harvest_volume_m3=0.0,
 
     Net evaporation is floored at zero period by period: rain beyond evaporation
     overflows and cannot be banked against a later dry period (the same rule as the
-    hourly balance in :mod:`pondsim.thermal`). Pass daily (or hourly) values: summing
+    hourly balance in :mod:`pondsim.pond.thermal`). Pass daily (or hourly) values: summing
     over a month first lets a wet day offset a dry one and understates makeup.
     Condensation (negative evaporation) counts as gain, like rain. Blowdown to hold
     salinity is not included. NaN inputs give NaN.
@@ -994,7 +994,7 @@ def bill_from_results(ds, *, policy=None, farm=None, rain_mm_daily=None,
     Parameters
     ----------
     ds : xarray.Dataset
-        The results contract of :mod:`pondsim.results`: ``harvested`` [g m-2 d-1] and
+        The results contract of :mod:`pondsim.results.files`: ``harvested`` [g m-2 d-1] and
         ``harvest_fraction`` [-] over (policy, member, day), ``evaporation`` [mm d-1]
         over day, a ``date`` coordinate and the ``pond_area_m2``, ``pond_count``,
         ``depth_m`` attributes.
@@ -1004,7 +1004,7 @@ def bill_from_results(ds, *, policy=None, farm=None, rain_mm_daily=None,
         Default built from the Dataset's attributes with the default velocity and
         geometry.
     rain_mm_daily : array-like or Series, optional [mm d-1]
-        Rain per simulated day (e.g. the daily sums of :mod:`pondsim.thermal`'s ``rain``);
+        Rain per simulated day (e.g. the daily sums of :mod:`pondsim.pond.thermal`'s ``rain``);
         without it no rain is counted, which overstates makeup water.
     params : InputsParams, optional
     prices : dict, optional

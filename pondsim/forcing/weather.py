@@ -44,8 +44,8 @@ import numpy as np
 import pandas as pd
 import pvlib
 
-from pondsim import psychrometry
 from pondsim.errors import InputError, did_you_mean
+from pondsim.forcing import psychrometry
 
 __all__ = [
     "FORMATS",
@@ -119,7 +119,7 @@ def _pandas4_warning():
 
 def pressure_from_elevation(elevation_m):
     """Mean atmospheric pressure at an elevation [Pa], FAO-56 eq. 7 (see
-    :func:`pondsim.psychrometry.pressure_from_elevation`, which gives kPa)."""
+    :func:`pondsim.forcing.psychrometry.pressure_from_elevation`, which gives kPa)."""
     return 1000.0 * psychrometry.pressure_from_elevation(elevation_m)
 
 
@@ -913,7 +913,7 @@ def write_epw(df: pd.DataFrame, meta: Mapping, path) -> Path:
     Parameters
     ----------
     df : pandas.DataFrame
-        Forcing table from :func:`read_weather` or :mod:`pondsim.climate` (hour-start
+        Forcing table from :func:`read_weather` or :mod:`pondsim.forcing.climate` (hour-start
         labels, local standard time).
     meta : mapping
         ``name``, ``latitude``, ``longitude``, ``elevation_m``, ``utc_offset_h``, and

@@ -25,9 +25,9 @@ import numpy as np
 import pandas as pd
 from scipy.optimize import minimize
 
-from .engine import Drivers, Operation, integrate
-from .harvest import rules_from_entries, season_of_day
-from .scenario import Policy
+from pondsim.operations.engine import Drivers, Operation, integrate
+from pondsim.operations.harvest import rules_from_entries, season_of_day
+from pondsim.scenario import Policy
 
 #: Candidate grids (per season). Densities are multiples of the season's mean K.
 FRACTIONS = np.round(np.linspace(0.03, 0.45, 15), 3)
@@ -230,12 +230,12 @@ def tuned_scenario_text(original: str, seasons, plan: list[Policy],
 
 
 def write_text(path: Path, text: str) -> Path:
-    from .results import _atomic_write
+    from pondsim.results.files import atomic_write
 
     def write(tmp):
         Path(tmp).write_text(text, encoding="utf-8")
 
-    return _atomic_write(Path(path), write)
+    return atomic_write(Path(path), write)
 
 
 def tune_scenario(scenario, *, n_years: int, members: int, seed: int | None = None,
@@ -247,15 +247,15 @@ def tune_scenario(scenario, *, n_years: int, members: int, seed: int | None = No
     order), the per-season table, and the names of the starting policies (the scenario's
     best existing policy in each season).
     """
-    from .compare import best_by_season, season_table
-    from .outlook import weather_years
-    from .simulate import (
+    from pondsim.operations.simulate import (
         build_drivers,
         crash_model_of,
         hourly_light_and_water,
         operation_of,
         simulate,
     )
+    from pondsim.studies.compare import best_by_season, season_table
+    from pondsim.studies.outlook import weather_years
 
     seed = scenario.run.seed if seed is None else seed
     years, meta = weather_years(scenario, n_years, seed)

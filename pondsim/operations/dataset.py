@@ -1,0 +1,150 @@
+"""The results contract: engine output and forcing aggregates assembled into one
+:class:`xarray.Dataset` with dims (policy, member, day), every variable with ``units`` and
+``long_name`` (names from :mod:`pondsim.glossary`)."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import xarray as xr
+
+from pondsim.glossary import CAUTION, RESULTS
+from pondsim.operations.engine import HOURS_PER_DAY
+from pondsim.operations.harvest import season_of_day
+
+
+def _attrs(name: str) -> dict:
+    long_name, units = RESULTS[name]
+    return {"long_name": long_name, "units": units}
+
+
+def build_dataset(daily, drivers, hourly_sets, scenario, meta: dict, *,
+                  policy_names, members: int, sets: tuple[int, int, int] | None = None
+                  ) -> xr.Dataset:
+    """Assemble engine output and forcing aggregates into the results Dataset.
+
+    Engine arrays are policy-major over ``len(policy_names) * members`` rows; within a
+    policy, members run over ``sets = (n_weather_years, n_draws, n_replicates)``, weather
+    year slowest. Variables that depend only on the weather year (water temperature, PAR,
+    evaporation, ...) have dims ``(day,)`` for one weather year and ``(member, day)``
+    otherwise; the carrying capacity likewise per driver set.
+    """
+    if isinstance(hourly_sets, pd.DataFrame):
+        hourly_sets = [hourly_sets]
+    n_years, n_draws, reps = sets if sets is not None else (1, 1, members)
+    n_pol = len(policy_names)
+    n_days = daily.density.shape[1]
+    depth = scenario.pond.depth_m
+    eff = scenario.harvest.recovery_efficiency
+
+    def cube(a):
+        return a.reshape(n_pol, members, n_days)
+
+    hourly = hourly_sets[0]
+    dates = pd.DatetimeIndex(hourly.index[::HOURS_PER_DAY]).tz_localize(None).normalize()
+    dims3 = ("policy", "member", "day")
+    member = np.arange(members)
+    year_of_member = member // (n_draws * reps)
+    set_of_member = member // reps
+
+    def per_year(column, how, scale=1.0):
+        values = []
+        for h in hourly_sets:
+            if column not in h:
+                values.append(np.full(n_days, np.nan))
+                continue
+            v = h[column].to_numpy(dtype=float).reshape(n_days, HOURS_PER_DAY)
+            values.append((v.sum(axis=1) if how == "sum" else v.mean(axis=1)) * scale)
+        values = np.stack(values)
+        if n_years == 1:
+            return ("day",), values[0]
+        return ("member", "day"), values[year_of_member]
+
+    def forcing_var(name, column, how, scale=1.0, attrs=None):
+        dims, values = per_year(column, how, scale)
+        return dims, values, attrs if attrs is not None else _attrs(name)
+
+    k_dims, k_values = (("day",), drivers.capacity[0]) if drivers.n_sets == 1 else \
+        (("member", "day"), drivers.capacity[set_of_member])
+    ds = xr.Dataset(
+        {
+            "density": (dims3, cube(daily.density), _attrs("density")),
+            "areal_biomass": (dims3, cube(daily.density) * depth, _attrs("areal_biomass")),
+            "harvested": (dims3, cube(daily.removed) * depth * eff, _attrs("harvested")),
+            "harvest_fraction": (dims3, cube(daily.harvest_fraction),
+                                 {"long_name": "share of the culture volume harvested",
+                                  "units": "1"}),
+            "growth_rate": (dims3, cube(daily.growth_rate), _attrs("growth_rate")),
+            "crash_loss": (dims3, cube(daily.lost) * depth,
+                           {"long_name": "biomass lost to crashes", "units": "g m-2 d-1"}),
+            "crashed": (dims3, cube(daily.crashed).astype(np.int8), _attrs("crashed")),
+            "hazard": (dims3, cube(daily.hazard),
+                       {"long_name": "daily culture crash hazard", "units": "d-1"}),
+            "status": (dims3, cube(daily.status), {
+                **_attrs("status"),
+                "flag_values": "0 1 2",
+                "flag_meanings": "growing restarting_after_crash not_yet_inoculated"}),
+            "carrying_capacity": (k_dims, k_values, _attrs("carrying_capacity")),
+            "water_temperature": forcing_var("water_temperature", "water_temperature",
+                                             "mean"),
+            "par_daily": forcing_var("par_daily", "par", "sum", 3600e-6),
+            "evaporation": forcing_var("evaporation", "evaporation", "sum"),
+            "rain": forcing_var("rain", "rain", "sum", attrs={
+                "long_name": "rain falling on the pond", "units": "mm d-1"}),
+            "ghi_daily": forcing_var("ghi_daily", "ghi", "sum", 3600e-6, attrs={
+                "long_name": "daily global horizontal irradiation", "units": "MJ m-2 d-1"}),
+        },
+        coords={
+            "policy": list(policy_names),
+            "member": member,
+            "weather_year": (("member",), year_of_member),
+            "draw": (("member",), (member // reps) % n_draws),
+            "replicate": (("member",), member % reps),
+            "day": np.arange(1, n_days + 1),
+            "date": (("day",), dates.to_numpy()),
+            "season": (("day",), np.array([s.name for s in scenario.seasons])[
+                season_of_day(dates, scenario.seasons)]),
+        },
+    )
+    for name in ("inoculated", "grown", "respired", "removed", "lost", "final"):
+        ds[f"ledger_{name}"] = (("policy", "member"),
+                                daily.ledger[name].reshape(n_pol, members) * depth,
+                                {"long_name": f"annual biomass ledger: {name}",
+                                 "units": "g m-2"})
+    offset = meta.get("utc_offset_h", scenario.site.utc_offset_h)
+    ds["date"].attrs = {"long_name": "local standard date",
+                        "timezone": f"local standard time, UTC offset {offset} h"}
+    ds.attrs = {
+        "title": f"pondsim results: {scenario.study_name}",
+        "site": str(meta.get("name", scenario.site.name)),
+        "latitude": float(meta.get("latitude", np.nan) or np.nan),
+        "longitude": float(meta.get("longitude", np.nan) or np.nan),
+        "strain": scenario.strain.name,
+        "growth_form": scenario.strain.growth_form,
+        "depth_m": depth,
+        "pond_area_m2": scenario.pond.area_m2,
+        "pond_count": scenario.pond.count,
+        "year": scenario.year,
+        "caution": CAUTION,
+        "Conventions": "CF-1.10",
+        "source": f"pondsim {_version()}",
+        "weather_notes": "; ".join(str(n) for n in meta.get("notes", [])),
+        "weather_years": n_years,
+        "parameter_draws": n_draws,
+        "replicates": reps,
+        "photons_per_joule_umol": float(hourly.attrs.get("photons_per_joule_umol", np.nan)),
+        "recovery_efficiency": eff,
+    }
+    crash = scenario.crash
+    if crash is not None:
+        ds.attrs["crash_enabled"] = int(crash.enabled)
+        for name in ("base_hazard_per_d", "stress_hazard_per_d", "overshoot_onset",
+                     "window_days", "drop_scale", "loss_fraction", "max_season_probability"):
+            ds.attrs[f"crash_{name}"] = getattr(crash, name)
+    return ds
+
+
+def _version() -> str:
+    from pondsim import __version__
+
+    return __version__
