@@ -1,14 +1,14 @@
 """pondsim: open raceway pond planning for microalgae.
 
-Data flow (one module per stage)::
+Data flow (one subpackage per stage; each imports only from the stages above it)::
 
-    scenario.py   scenario TOML -> Scenario (validated)
-    weather.py    weather files -> hourly forcing      climate.py  clear-sky site mode
-    light.py      PAR entering the culture             thermal.py  water temperature
-    kinetics.py   growth rates                         capacity.py carrying capacity K(t)
-    harvest.py    harvest rules                        engine.py   vectorised integration
-    simulate.py   wiring: simulate(scenario) -> xarray.Dataset
-    results.py    summary tables, netCDF/CSV           plots.py    figures
+    scenario/     scenario TOML -> Scenario (schema, model, parse)
+    forcing/      weather files or clear-sky site -> hourly forcing table
+    pond/         PAR, water temperature and evaporation, growth kinetics, K(t)
+    operations/   harvest rules, crash draws, the engine, simulate() -> Dataset
+    results/      summary tables, figures, netCDF/CSV files
+    studies/      compare, tune, outlook, inputs bill, calibration, screening
+    report/       the HTML study report
     cli.py        the ``pondsim`` command
 
 Importing pondsim defines things and does nothing else.

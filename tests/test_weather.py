@@ -240,7 +240,7 @@ def test_write_epw_is_atomic(tmp_path, clearsky_table, monkeypatch):
     def failing_replace(src, dst):
         raise OSError("disk full")
 
-    monkeypatch.setattr("pondsim.forcing.weather.os.replace", failing_replace)
+    monkeypatch.setattr("pondsim.forcing.epw_writer.os.replace", failing_replace)
     with pytest.raises(OSError):
         write_epw(df, meta, target)
     assert target.read_text() == "old content\n"

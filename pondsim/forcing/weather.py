@@ -32,20 +32,45 @@ respect to the hour mean; that keeps a written-and-read EPW identical to its sou
 from __future__ import annotations
 
 import calendar
-import datetime as _dt
 import json
-import os
-import tempfile
-import warnings
 from collections.abc import Mapping
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
-import pvlib
 
 from pondsim.errors import InputError, did_you_mean
-from pondsim.forcing import psychrometry
+from pondsim.forcing.columns import (
+    DEFAULT_TYPICAL_YEAR,
+    DERIVED_COLUMNS,
+    FORMATS,
+    HALF_HOUR,
+    IRRADIANCE_CLIP_W_M2,
+    OPTIONAL_COLUMNS,
+    RANGES,
+    REQUIRED_COLUMNS,
+    RH_CLIP_PCT,
+    UNITS,
+)
+from pondsim.forcing.epw_writer import write_epw
+from pondsim.forcing.formats import (
+    RawWeather,
+    detect_format,
+    raw_csv,
+    raw_epw,
+    raw_pvgis,
+    raw_tmy2,
+    raw_tmy3,
+)
+from pondsim.forcing.solar import (
+    clearsky_ghi_midhour,
+    decompose_ghi,
+    dewpoint_from_rh,
+    fixed_offset,
+    pressure_from_elevation,
+    saturation_vapour_pressure,
+    solar_position_midhour,
+)
 
 __all__ = [
     "FORMATS",
@@ -64,454 +89,10 @@ __all__ = [
     "fixed_offset",
 ]
 
-#: Formats understood by :func:`read_weather` (``fmt=``).
-FORMATS = ("auto", "epw", "tmy3", "tmy2", "pvgis", "csv")
-
-#: Columns every forcing table carries (derived columns added after these).
-REQUIRED_COLUMNS = (
-    "ghi", "dni", "dhi", "temp_air", "wind_speed", "relative_humidity", "pressure",
-)
-#: Columns kept where the file has them complete and in range.
-OPTIONAL_COLUMNS = ("precipitation", "ir_horizontal")
-#: Derived columns, computed for the site.
-DERIVED_COLUMNS = ("solar_zenith", "ghi_clear")
-
-#: Allowed physical ranges (lower, upper) in pondsim units.
-RANGES = {
-    "ghi": (0.0, 1500.0),
-    "dni": (0.0, 1500.0),
-    "dhi": (0.0, 1500.0),
-    "temp_air": (-60.0, 60.0),
-    "wind_speed": (0.0, 60.0),
-    "relative_humidity": (0.0, 100.0),
-    "pressure": (30000.0, 110000.0),
-    # optional columns: out of range -> column dropped with a note, not an error
-    "precipitation": (0.0, 200.0),
-    "ir_horizontal": (40.0, 700.0),
-}
-_UNITS = {
-    "ghi": "W m-2", "dni": "W m-2", "dhi": "W m-2", "temp_air": "degC",
-    "wind_speed": "m s-1", "relative_humidity": "%", "pressure": "Pa",
-    "precipitation": "mm h-1", "ir_horizontal": "W m-2",
-}
-#: Irradiance down to this value [W m-2] is sensor night offset and is clipped to 0.
-IRRADIANCE_CLIP_W_M2 = -10.0
-#: Relative humidity up to this value [%] is sensor overshoot (fog, dew) and is clipped
-#: to 100 %; above it the file is rejected.
-RH_CLIP_PCT = 105.0
-
-#: Year that typical-year rows are put into when no ``year`` is given (not a leap year).
-DEFAULT_TYPICAL_YEAR = 2025
-
-_HOUR = pd.Timedelta(hours=1)
-_HALF_HOUR = pd.Timedelta(minutes=30)
-
-
-# --------------------------------------------------------------------------- helpers
-def fixed_offset(utc_offset_h: float) -> _dt.timezone:
-    """Fixed-offset zone for local standard time ``utc_offset_h`` hours from UTC."""
-    return _dt.timezone(_dt.timedelta(hours=float(utc_offset_h)))
-
-
-def _pandas4_warning():
-    return getattr(pd.errors, "Pandas4Warning", FutureWarning)
-
-
-def pressure_from_elevation(elevation_m):
-    """Mean atmospheric pressure at an elevation [Pa], FAO-56 eq. 7 (see
-    :func:`pondsim.forcing.psychrometry.pressure_from_elevation`, which gives kPa)."""
-    return 1000.0 * psychrometry.pressure_from_elevation(elevation_m)
-
-
-saturation_vapour_pressure = psychrometry.saturation_vapour_pressure
-dewpoint_from_rh = psychrometry.dewpoint_from_rh
-
-
-def solar_position_midhour(index, latitude, longitude, elevation_m=0.0, *,
-                           pressure_pa=None, temp_air_c=12.0, delta_t=67.0):
-    """Solar position at the middle of each hour, NREL SPA through pvlib.
-
-    Parameters
-    ----------
-    index : pandas.DatetimeIndex
-        tz-aware hour-START labels (the position is computed at ``index + 30 min``).
-    latitude, longitude : float [deg]
-        Site, north and east positive.
-    elevation_m : float [m]
-    pressure_pa : float or array-like [Pa], optional
-        Air pressure for the refraction correction; default: FAO-56 eq. 7 at the site.
-    temp_air_c : float or array-like [degC]
-        Air temperature for the refraction correction.
-    delta_t : float [s]
-        TT − UT1; pvlib's default 67 s (the SPA worked example's value).
-
-    Returns
-    -------
-    pandas.DataFrame
-        pvlib's ``spa_python`` columns (``apparent_zenith``, ``zenith``, ``azimuth``, …),
-        indexed by the hour-start labels.
-
-    References
-    ----------
-    Reda & Andreas (2004), Solar position algorithm for solar radiation applications,
-    Solar Energy 76:577–589, doi:10.1016/j.solener.2003.12.003.
-    """
-    if index.tz is None:
-        raise ValueError("solar_position_midhour needs a tz-aware index (local standard time)")
-    if pressure_pa is None:
-        pressure_pa = float(pressure_from_elevation(elevation_m))
-    mid = index + _HALF_HOUR
-    pos = pvlib.solarposition.spa_python(
-        mid, latitude, longitude, altitude=elevation_m, pressure=pressure_pa,
-        temperature=temp_air_c, delta_t=delta_t,
-    )
-    pos.index = index
-    return pos
-
-
-def clearsky_ghi_midhour(index, apparent_zenith, latitude, longitude, elevation_m,
-                         pressure_pa=None):
-    """Ineichen–Perez clear-sky GHI at the middle of each hour [W m-2].
-
-    Linke turbidity from pvlib's monthly climatology (``lookup_linke_turbidity``,
-    interpolated by day of year); relative air mass Kasten & Young (1989) from the
-    apparent zenith, made absolute with the site pressure; extraterrestrial normal
-    irradiance from Spencer (1971).
-
-    References
-    ----------
-    Ineichen & Perez (2002), Solar Energy 73:151–157, doi:10.1016/S0038-092X(02)00045-2.
-    """
-    mid = index + _HALF_HOUR
-    with warnings.catch_warnings():
-        # pvlib 0.16 calls DatetimeIndex.dayofyear (deprecated in pandas 3)
-        warnings.simplefilter("ignore", _pandas4_warning())
-        linke = np.asarray(pvlib.clearsky.lookup_linke_turbidity(mid, latitude, longitude))
-    doy = np.asarray(mid.day_of_year, dtype=float)
-    dni_extra = np.asarray(pvlib.irradiance.get_extra_radiation(doy))
-    if pressure_pa is None:
-        pressure_pa = float(pressure_from_elevation(elevation_m))
-    zen = np.asarray(apparent_zenith, dtype=float)
-    with np.errstate(all="ignore"):  # night: NaN air mass, handled just below
-        am_rel = pvlib.atmosphere.get_relative_airmass(zen)
-        am_abs = pvlib.atmosphere.get_absolute_airmass(am_rel, np.asarray(pressure_pa))
-        cs = pvlib.clearsky.ineichen(zen, am_abs, linke, altitude=elevation_m,
-                                     dni_extra=dni_extra)
-    ghi = np.nan_to_num(np.asarray(cs["ghi"], dtype=float), nan=0.0)
-    return np.where(zen < 90.0, np.clip(ghi, 0.0, None), 0.0)
-
-
-def decompose_ghi(ghi, solar_zenith, day_of_year):
-    """Split GHI into DNI and DHI with the Erbs et al. (1982) correlation (via pvlib).
-
-    Parameters
-    ----------
-    ghi : array-like [W m-2]
-    solar_zenith : array-like [deg]
-    day_of_year : array-like [1..366]
-
-    Returns
-    -------
-    dni, dhi : ndarray [W m-2]
-        ``dhi + dni·cos(zenith) = ghi`` wherever the sun is up.
-
-    References
-    ----------
-    Erbs, Klein & Duffie (1982), Estimation of the diffuse radiation fraction for hourly,
-    daily and monthly-average global radiation, Solar Energy 28:293–302,
-    doi:10.1016/0038-092X(82)90302-4.
-    """
-    out = pvlib.irradiance.erbs(np.asarray(ghi, dtype=float), np.asarray(solar_zenith),
-                                np.asarray(day_of_year, dtype=float))
-    dni = np.nan_to_num(np.asarray(out["dni"], dtype=float))
-    dhi = np.nan_to_num(np.asarray(out["dhi"], dtype=float))
-    return np.clip(dni, 0.0, None), np.clip(dhi, 0.0, None)
-
-
-# --------------------------------------------------------------------------- readers
-class _Raw:
-    """What a format reader hands to the common assembly step."""
-
-    def __init__(self, data, comps, site, fmt, typical, notes=None, source_years=None):
-        self.data = data            # DataFrame, our names and units, RangeIndex
-        self.comps = comps          # dict of int arrays year/month/day/hour (hour start, LST)
-        self.site = site            # name, latitude, longitude, elevation_m, utc_offset_h
-        self.fmt = fmt
-        self.typical = typical
-        self.notes = list(notes or [])
-        self.source_years = source_years
-
-
-def _comps_from_times(times: pd.Series | pd.DatetimeIndex) -> dict:
-    t = pd.DatetimeIndex(times)
-    return {"year": np.asarray(t.year), "month": np.asarray(t.month),
-            "day": np.asarray(t.day), "hour": np.asarray(t.hour)}
-
-
-def _looks_typical(comps) -> bool:
-    """Mixed source years with each calendar hour once, in calendar order."""
-    years = comps["year"]
-    if len(np.unique(years)) <= 1:
-        return False
-    key = comps["month"] * 10000 + comps["day"] * 100 + comps["hour"]
-    return bool(np.all(np.diff(key) > 0))
-
-
-def _nan_sentinel(s: pd.Series, *, ge=None, eq=None) -> pd.Series:
-    s = pd.to_numeric(s, errors="coerce").astype(float)
-    if ge is not None:
-        s = s.where(~(s >= ge))
-    if eq is not None:
-        s = s.where(~np.isclose(s, eq))
-    return s
-
-
-def _read_epw(path: Path) -> _Raw:
-    data, meta = pvlib.iotools.read_epw(str(path))
-    d = pd.DataFrame({
-        "ghi": _nan_sentinel(data["ghi"], ge=9999),
-        "dni": _nan_sentinel(data["dni"], ge=9999),
-        "dhi": _nan_sentinel(data["dhi"], ge=9999),
-        "temp_air": _nan_sentinel(data["temp_air"], ge=99.9),
-        "wind_speed": _nan_sentinel(data["wind_speed"], ge=999),
-        "relative_humidity": _nan_sentinel(data["relative_humidity"], ge=999),
-        "pressure": _nan_sentinel(data["atmospheric_pressure"], ge=999999),
-        "precipitation": _nan_sentinel(data["liquid_precipitation_depth"], ge=999),
-        "ir_horizontal": _nan_sentinel(data["ghi_infrared"], ge=9999),
-    }).reset_index(drop=True)
-    # EPW hour h (1..24) covers (h-1):00 to h:00 local standard time
-    comps = {
-        "year": data["year"].to_numpy(int), "month": data["month"].to_numpy(int),
-        "day": data["day"].to_numpy(int), "hour": data["hour"].to_numpy(int) - 1,
-    }
-    site = {"name": str(meta.get("city", "")).strip(), "latitude": meta["latitude"],
-            "longitude": meta["longitude"], "elevation_m": meta["altitude"],
-            "utc_offset_h": meta["TZ"]}
-    typical = _looks_typical(comps)
-    return _Raw(d, comps, site, "epw", typical, source_years=np.unique(comps["year"]))
-
-
-def _read_tmy3(path: Path) -> _Raw:
-    data, meta = pvlib.iotools.read_tmy3(str(path), map_variables=True)
-    # Rebuild the clock from the raw columns: HH:MM labels the END of the hour.
-    date = pd.to_datetime(data["Date (MM/DD/YYYY)"], format="%m/%d/%Y")
-    hh = data["Time (HH:MM)"].str.split(":").str[0].astype(int)
-    end = pd.DatetimeIndex(date) + pd.to_timedelta(hh.to_numpy(), unit="h")
-    start = end - _HOUR
-    precip = _nan_sentinel(data["Lprecip depth (mm)"], eq=-9900)
-    d = pd.DataFrame({
-        "ghi": _nan_sentinel(data["ghi"], eq=-9900),
-        "dni": _nan_sentinel(data["dni"], eq=-9900),
-        "dhi": _nan_sentinel(data["dhi"], eq=-9900),
-        "temp_air": _nan_sentinel(data["temp_air"], eq=-9900),
-        "wind_speed": _nan_sentinel(data["wind_speed"], eq=-9900),
-        "relative_humidity": _nan_sentinel(data["relative_humidity"], eq=-9900),
-        "pressure": _nan_sentinel(data["pressure"], eq=-9900) * 100.0,  # mbar -> Pa
-        "precipitation": precip,
-    }).reset_index(drop=True)
-    comps = _comps_from_times(start)
-    site = {"name": str(meta.get("Name", "")).strip().strip('"'),
-            "latitude": meta["latitude"], "longitude": meta["longitude"],
-            "elevation_m": meta["altitude"], "utc_offset_h": meta["TZ"]}
-    return _Raw(d, comps, site, "tmy3", True, source_years=np.unique(date.dt.year))
-
-
-def _read_tmy2(path: Path) -> _Raw:
-    data, meta = pvlib.iotools.read_tmy2(str(path))
-    yr = data["year"].to_numpy(int)
-    yr = np.where(yr < 100, 1900 + yr, yr)
-    d = pd.DataFrame({
-        "ghi": _nan_sentinel(data["GHI"], ge=9999),
-        "dni": _nan_sentinel(data["DNI"], ge=9999),
-        "dhi": _nan_sentinel(data["DHI"], ge=9999),
-        "temp_air": _nan_sentinel(data["DryBulb"], ge=9999) / 10.0,   # tenths of degC
-        "wind_speed": _nan_sentinel(data["Wspd"], ge=999) / 10.0,     # tenths of m/s
-        "relative_humidity": _nan_sentinel(data["RHum"], ge=999),
-        "pressure": _nan_sentinel(data["Pressure"], ge=9999) * 100.0,  # mbar -> Pa
-    }).reset_index(drop=True)
-    # TMY2 hour h (1..24) ends at h:00 local standard time
-    comps = {"year": yr, "month": data["month"].to_numpy(int),
-             "day": data["day"].to_numpy(int), "hour": data["hour"].to_numpy(int) - 1}
-    site = {"name": str(meta.get("City", "")).strip(), "latitude": meta["latitude"],
-            "longitude": meta["longitude"], "elevation_m": meta["altitude"],
-            "utc_offset_h": meta["TZ"]}
-    return _Raw(d, comps, site, "tmy2", True, source_years=np.unique(yr))
-
-
-def _read_pvgis(path: Path, utc_offset_h) -> _Raw:
-    fmt = "json" if path.suffix.lower() == ".json" else "csv"
-    data, meta = pvlib.iotools.read_pvgis_tmy(str(path), pvgis_format=fmt,
-                                              map_variables=True)
-    inputs = meta.get("inputs", {})
-    loc = inputs.get("location", inputs)
-    site = {"name": "", "latitude": loc.get("latitude"), "longitude": loc.get("longitude"),
-            "elevation_m": loc.get("elevation"), "utc_offset_h": None}
-    notes = []
-    off = inputs.get("irradiance time offset")
-    if off is not None:
-        notes.append(f"PVGIS irradiance time offset {off} h noted, not applied")
-    if utc_offset_h is None:
-        lon = site["longitude"]
-        hint = f" (e.g. {round(lon / 15)} from the longitude)" if lon is not None else ""
-        raise InputError("PVGIS files are in UTC: give utc_offset_h, the site's standard "
-                         "time offset from UTC in hours" + hint,
-                         path=path, field="utc_offset_h")
-    ir = data["IR(h)"] if "IR(h)" in data else pd.Series(np.nan, index=data.index)
-    d = pd.DataFrame({
-        "ghi": data["ghi"], "dni": data["dni"], "dhi": data["dhi"],
-        "temp_air": data["temp_air"], "wind_speed": data["wind_speed"],
-        "relative_humidity": data["relative_humidity"], "pressure": data["pressure"],
-        "ir_horizontal": ir,
-    }).astype(float).reset_index(drop=True)
-    utc = pd.DatetimeIndex(data.index)
-    local = utc.tz_convert(fixed_offset(utc_offset_h)).tz_localize(None)
-    notes.append("PVGIS time(UTC) taken as the start of each hour and converted to "
-                 f"UTC{float(utc_offset_h):+g} h")
-    src_years = np.unique(utc.year)
-    # a PVGIS TMY is always a typical year, whatever the order of its source months
-    return _Raw(d, _comps_from_times(local), site, "pvgis-" + fmt, True, notes,
-                source_years=src_years)
-
-
-#: Units accepted in ``csv_units`` → function converting to pondsim units.
-CSV_UNITS = {
-    "pressure": {"Pa": lambda x: x, "hPa": lambda x: x * 100.0,
-                 "mbar": lambda x: x * 100.0, "kPa": lambda x: x * 1000.0},
-    "temp_air": {"degC": lambda x: x, "K": lambda x: x - 273.15,
-                 "degF": lambda x: (x - 32.0) * 5.0 / 9.0},
-    "temp_dew": {"degC": lambda x: x, "K": lambda x: x - 273.15,
-                 "degF": lambda x: (x - 32.0) * 5.0 / 9.0},
-    "wind_speed": {"m s-1": lambda x: x, "km h-1": lambda x: x / 3.6,
-                   "mph": lambda x: x * 0.44704, "kn": lambda x: x * 0.514444},
-    "relative_humidity": {"%": lambda x: x, "1": lambda x: x * 100.0},
-    "precipitation": {"mm": lambda x: x, "cm": lambda x: x * 10.0,
-                      "in": lambda x: x * 25.4},
-}
-_IRR_UNITS = {"W m-2": lambda x: x, "Wh m-2": lambda x: x,  # hour sums = hour means
-              "kJ m-2": lambda x: x / 3.6, "MJ m-2": lambda x: x / 0.0036}
-for _k in ("ghi", "dni", "dhi", "ir_horizontal"):
-    CSV_UNITS[_k] = _IRR_UNITS
-_UNIT_ALIASES = {"c": "degC", "°c": "degC", "degc": "degC", "celsius": "degC",
-                 "f": "degF", "°f": "degF", "kelvin": "K", "m/s": "m s-1",
-                 "km/h": "km h-1", "knots": "kn", "w/m2": "W m-2", "w/m^2": "W m-2",
-                 "wh/m2": "Wh m-2", "kj/m2": "kJ m-2", "mj/m2": "MJ m-2",
-                 "percent": "%", "fraction": "1", "millibar": "mbar"}
-
-#: Names that ``csv_columns`` may map (``time`` plus forcing inputs).
-CSV_FIELDS = ("time",) + REQUIRED_COLUMNS + OPTIONAL_COLUMNS + ("temp_dew",)
-
-
-def _read_csv(path: Path, csv_columns, csv_units, time_label) -> _Raw:
-    try:
-        header = list(pd.read_csv(path, nrows=0).columns)
-    except Exception as exc:  # noqa: BLE001 - any parse failure is a user file problem
-        raise InputError(f"cannot read as CSV: {exc}", path=path) from None
-    mapping = {k: k for k in CSV_FIELDS if k in header}
-    for key, col in dict(csv_columns or {}).items():
-        if key not in CSV_FIELDS:
-            raise InputError(f"unknown name '{key}'{did_you_mean(key, CSV_FIELDS)}; "
-                             f"allowed: {', '.join(CSV_FIELDS)}",
-                             path=path, field=f"csv_columns.{key}")
-        if col not in header:
-            raise InputError(f"column '{col}' not in the file{did_you_mean(col, header)}; "
-                             f"the file has: {', '.join(map(str, header))}",
-                             path=path, field=f"csv_columns.{key}")
-        mapping[key] = col
-    if "time" not in mapping:
-        raise InputError("no time column: name it 'time' or map it with "
-                         "csv_columns={'time': '<header>'}", path=path, field="time")
-    units = {}
-    for key, unit in dict(csv_units or {}).items():
-        if key not in CSV_UNITS:
-            raise InputError(f"no unit conversion for '{key}'{did_you_mean(key, CSV_UNITS)};"
-                             f" convertible: {', '.join(CSV_UNITS)}",
-                             path=path, field=f"csv_units.{key}")
-        u = _UNIT_ALIASES.get(str(unit).strip().lower(), str(unit).strip())
-        if u not in CSV_UNITS[key]:
-            raise InputError(f"unknown unit '{unit}'; allowed: {', '.join(CSV_UNITS[key])}",
-                             path=path, field=f"csv_units.{key}")
-        units[key] = u
-    raw = pd.read_csv(path, usecols=sorted(set(mapping.values())))
-    try:
-        t = pd.to_datetime(raw[mapping["time"]])
-    except (ValueError, TypeError) as exc:
-        raise InputError(f"cannot parse times in column '{mapping['time']}': {exc}",
-                         path=path, field="time") from None
-    if t.isna().any():
-        i = int(np.flatnonzero(t.isna().to_numpy())[0])
-        raise InputError(f"unparsable time on data row {i + 1}", path=path, field="time")
-    t = pd.DatetimeIndex(t)
-    if t.tz is not None:
-        raise InputError("times carry a UTC offset; give local standard times without an "
-                         "offset and the offset as utc_offset_h", path=path, field="time")
-    if np.any((t.minute != 0) | (t.second != 0)):
-        raise InputError("times must be on the full hour (hourly data; resample "
-                         "sub-hourly data to hour means first)", path=path, field="time")
-    if time_label == "end":
-        t = t - _HOUR
-    elif time_label != "start":
-        raise InputError(f"csv_time_label must be 'start' or 'end', not '{time_label}'",
-                         path=path, field="csv_time_label")
-    d = pd.DataFrame(index=range(len(raw)))
-    for key, col in mapping.items():
-        if key == "time":
-            continue
-        vals = pd.to_numeric(raw[col], errors="coerce").astype(float).to_numpy()
-        d[key] = CSV_UNITS.get(key, {}).get(units.get(key, ""), lambda x: x)(vals)
-    notes = []
-    if "ghi" not in d or "temp_air" not in d:
-        missing = [k for k in ("ghi", "temp_air") if k not in d]
-        raise InputError(f"required column(s) {missing} not found; map them with "
-                         "csv_columns", path=path, field=missing[0])
-    if "relative_humidity" not in d:
-        if "temp_dew" not in d:
-            raise InputError("need relative_humidity (or temp_dew) column",
-                             path=path, field="relative_humidity")
-        rh = 100 * saturation_vapour_pressure(d["temp_dew"]) / saturation_vapour_pressure(
-            d["temp_air"])
-        d["relative_humidity"] = np.minimum(rh, 100.0)
-        notes.append("relative_humidity computed from temp_dew (FAO-56 eq. 11)")
-    if "wind_speed" not in d:
-        raise InputError("need a wind_speed column", path=path, field="wind_speed")
-    if "pressure" not in d:
-        d["pressure"] = np.nan  # filled from elevation in the assembly step
-        notes.append("pressure from elevation (FAO-56 eq. 7)")
-    d = d.drop(columns=["temp_dew"], errors="ignore")
-    site = {"name": path.stem, "latitude": None, "longitude": None,
-            "elevation_m": None, "utc_offset_h": None}
-    comps = _comps_from_times(t)
-    typical = _looks_typical(comps)
-    return _Raw(d, comps, site, "csv", typical, notes, source_years=np.unique(comps["year"]))
-
-
-def _detect_format(path: Path) -> str:
-    ext = path.suffix.lower()
-    if ext == ".epw":
-        return "epw"
-    if ext == ".tm2":
-        return "tmy2"
-    if ext == ".json":
-        return "pvgis"
-    try:
-        with open(path, encoding="utf-8", errors="replace") as fh:
-            first = fh.readline()
-            second = fh.readline()
-    except OSError as exc:
-        raise InputError(f"cannot open: {exc}", path=path) from None
-    if first.startswith("LOCATION,"):
-        return "epw"
-    if first.startswith("Latitude (decimal degrees)"):
-        return "pvgis"
-    if second.startswith("Date (MM/DD/YYYY)"):
-        return "tmy3"
-    if ext in (".csv", ".txt"):
-        return "csv"
-    raise InputError(f"cannot tell the weather format from the name or content; give fmt= "
-                     f"one of {', '.join(FORMATS[1:])}", path=path, field="fmt")
 
 
 # --------------------------------------------------------------------------- assembly
-def _site(raw: _Raw, path, **given) -> dict:
+def _site(raw: RawWeather, path, **given) -> dict:
     site = dict(raw.site)
     for key, val in given.items():
         if val is not None:
@@ -632,8 +213,8 @@ def _check_range(df, col, path, notes, *, source_label=None) -> bool:
     if bad.any():
         i = int(np.flatnonzero(bad)[0])
         where = f" at {df.index[i]:%Y-%m-%d %H:%M}"
-        what = f"{col} = {v[i]:g} {_UNITS[col]}{where} is outside the allowed range " \
-               f"{lo:g} to {hi:g} {_UNITS[col]} ({int(bad.sum())} values)"
+        what = f"{col} = {v[i]:g} {UNITS[col]}{where} is outside the allowed range " \
+               f"{lo:g} to {hi:g} {UNITS[col]} ({int(bad.sum())} values)"
         if col in OPTIONAL_COLUMNS:
             notes.append(f"dropped optional column {col}: {what}")
             return False
@@ -666,7 +247,7 @@ def finish_forcing(df: pd.DataFrame, site: Mapping, *, delta_t=67.0) -> pd.DataF
     return out
 
 
-def _assemble(raw: _Raw, path: Path, site: dict, year, max_gap_h) -> tuple:
+def _assemble(raw: RawWeather, path: Path, site: dict, year, max_gap_h) -> tuple:
     tz = fixed_offset(site["utc_offset_h"])
     notes = list(raw.notes)
     data = raw.data
@@ -765,7 +346,7 @@ def _assemble(raw: _Raw, path: Path, site: dict, year, max_gap_h) -> tuple:
     if need_split:
         pos = solar_position_midhour(data.index, site["latitude"], site["longitude"],
                                      site["elevation_m"])
-        doy = np.asarray((data.index + _HALF_HOUR).day_of_year)
+        doy = np.asarray((data.index + HALF_HOUR).day_of_year)
         data["dni"], data["dhi"] = decompose_ghi(data["ghi"].to_numpy(),
                                                  pos["apparent_zenith"].to_numpy(), doy)
         notes.append("dni and dhi split from ghi with Erbs et al. (1982)")
@@ -857,20 +438,20 @@ def read_weather(path, *, fmt="auto", latitude=None, longitude=None, elevation_m
                          f"allowed: {', '.join(FORMATS)}", path=path, field="fmt")
     if int(max_gap_h) < 0:
         raise InputError("max_gap_h must be >= 0", path=path, field="max_gap_h")
-    kind = _detect_format(path) if fmt == "auto" else fmt
+    kind = detect_format(path) if fmt == "auto" else fmt
     try:
         if kind == "epw":
-            raw = _read_epw(path)
+            raw = raw_epw(path)
         elif kind == "tmy3":
-            raw = _read_tmy3(path)
+            raw = raw_tmy3(path)
         elif kind == "tmy2":
-            raw = _read_tmy2(path)
+            raw = raw_tmy2(path)
         elif kind == "pvgis" and path.suffix.lower() == ".epw":
-            raw = _read_epw(path)  # PVGIS's EPW output is a plain EPW file
+            raw = raw_epw(path)  # PVGIS's EPW output is a plain EPW file
         elif kind == "pvgis":
-            raw = _read_pvgis(path, utc_offset_h)
+            raw = raw_pvgis(path, utc_offset_h)
         else:
-            raw = _read_csv(path, csv_columns, csv_units, csv_time_label)
+            raw = raw_csv(path, csv_columns, csv_units, csv_time_label)
     except InputError:
         raise
     except (ValueError, KeyError, IndexError, TypeError, json.JSONDecodeError,
@@ -891,98 +472,3 @@ def read_weather(path, *, fmt="auto", latitude=None, longitude=None, elevation_m
     return out, meta
 
 
-# --------------------------------------------------------------------------- EPW writer
-def _epw_weekday(year: int) -> str:
-    return calendar.day_name[_dt.date(year, 1, 1).weekday()]
-
-
-def _umask() -> int:
-    mask = os.umask(0)
-    os.umask(mask)
-    return mask
-
-
-def write_epw(df: pd.DataFrame, meta: Mapping, path) -> Path:
-    """Write a forcing table as an EnergyPlus weather (EPW) file, atomically.
-
-    Values are printed at EPW's usual precision: temperatures 0.1 degC, RH 1 %,
-    pressure 1 Pa, irradiance 1 Wh m-2, wind 0.1 m s-1, precipitation 0.1 mm.
-    Missing optional columns are written as EPW's missing codes (IR 9999,
-    precipitation 999), which :func:`read_weather` reads back as absent.
-
-    Parameters
-    ----------
-    df : pandas.DataFrame
-        Forcing table from :func:`read_weather` or :mod:`pondsim.forcing.climate` (hour-start
-        labels, local standard time).
-    meta : mapping
-        ``name``, ``latitude``, ``longitude``, ``elevation_m``, ``utc_offset_h``, and
-        optionally ``notes`` (written as comment lines).
-    path : str or Path
-        Output file; written to a temporary file in the same folder, then renamed.
-
-    Returns
-    -------
-    Path
-    """
-    path = Path(path)
-    tz = fixed_offset(meta["utc_offset_h"])
-    idx = df.index.tz_convert(tz) if df.index.tz is not None else df.index.tz_localize(tz)
-    n = len(df)
-    name = str(meta.get("name", "site")).replace(",", " ")
-    years = idx.year
-    lines = [
-        f"LOCATION,{name},-,-,pondsim,999999,{meta['latitude']:.4f},"
-        f"{meta['longitude']:.4f},{meta['utc_offset_h']:.1f},{meta['elevation_m']:.1f}",
-        "DESIGN CONDITIONS,0",
-        "TYPICAL/EXTREME PERIODS,0",
-        "GROUND TEMPERATURES,0",
-        "HOLIDAYS/DAYLIGHT SAVINGS,No,0,0,0",
-        "COMMENTS 1," + "; ".join(str(s).replace(",", ";")
-                                  for s in meta.get("notes", []))[:2000],
-        f"COMMENTS 2,written by pondsim from {str(meta.get('source', '')).replace(',', ';')}",
-        f"DATA PERIODS,1,1,Data,{_epw_weekday(int(years[0]))},"
-        f"{idx[0].month}/{idx[0].day},{idx[-1].month}/{idx[-1].day}",
-    ]
-    temp = df["temp_air"].to_numpy(float)
-    rh = df["relative_humidity"].to_numpy(float)
-    dew = dewpoint_from_rh(temp, rh)
-    doy = np.asarray((idx + _HALF_HOUR).day_of_year, dtype=float)
-    etrn = np.asarray(pvlib.irradiance.get_extra_radiation(doy))
-    if "solar_zenith" in df:
-        cosz = np.cos(np.radians(df["solar_zenith"].to_numpy(float)))
-        etr = np.clip(etrn * cosz, 0.0, None)
-    else:
-        etr = np.zeros(n)
-    ir = df["ir_horizontal"].to_numpy(float) if "ir_horizontal" in df else np.full(n, 9999.0)
-    pr = df["precipitation"].to_numpy(float) if "precipitation" in df else np.full(n, 999.0)
-    cols = {
-        "ghi": df["ghi"].to_numpy(float), "dni": df["dni"].to_numpy(float),
-        "dhi": df["dhi"].to_numpy(float), "wind": df["wind_speed"].to_numpy(float),
-        "p": df["pressure"].to_numpy(float),
-    }
-    flags = "?9?9?9?9E0?9?9?9?9?9?9?9?9?9?9?9?9?9?9?9*9*9?9?9?9"
-    mo, dy, hr = idx.month, idx.day, idx.hour
-    rows = []
-    for i in range(n):
-        rows.append(
-            f"{years[i]},{mo[i]},{dy[i]},{hr[i] + 1},0,{flags},"
-            f"{temp[i]:.1f},{dew[i]:.1f},{rh[i]:.0f},{cols['p'][i]:.0f},"
-            f"{etr[i]:.0f},{etrn[i]:.0f},{ir[i]:.0f},{cols['ghi'][i]:.0f},"
-            f"{cols['dni'][i]:.0f},{cols['dhi'][i]:.0f},999999,999999,999999,9999,"
-            f"999,{cols['wind'][i]:.1f},99,99,9999,99999,9,999999999,999,0.999,999,99,"
-            f"999,{pr[i]:.1f},{1 if pr[i] < 999 else 99}"
-        )
-    text = "\n".join(lines + rows) + "\n"
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=path.name + ".", suffix=".tmp", dir=path.parent)
-    try:
-        with os.fdopen(fd, "w", encoding="ascii", newline="\n") as fh:
-            fh.write(text)
-        os.chmod(tmp, 0o666 & ~_umask())  # mkstemp makes 0600; give the usual mode
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
-    return path

@@ -35,6 +35,18 @@ def load_forcing(scenario: Scenario):
     return _one_year(forcing, scenario), meta
 
 
+def _given_forcing(forcing, scenario: Scenario) -> tuple[pd.DataFrame, dict]:
+    """``(table, meta)`` from what a caller passed as ``forcing``: a forcing table
+    (:func:`pondsim.read_weather`, metadata in its ``attrs``) or a ``(table, meta)`` pair."""
+    if isinstance(forcing, pd.DataFrame):
+        return _one_year(forcing, scenario), dict(forcing.attrs)
+    if isinstance(forcing, tuple) and len(forcing) == 2 \
+            and isinstance(forcing[0], pd.DataFrame):
+        return _one_year(forcing[0], scenario), dict(forcing[1])
+    raise TypeError("forcing must be a forcing table (pondsim.read_weather) or a "
+                    f"(table, meta) pair, not {type(forcing).__name__}")
+
+
 def _one_year(forcing: pd.DataFrame, scenario: Scenario) -> pd.DataFrame:
     """Cut the forcing to the study year and check that every hour is there."""
     year = scenario.year
@@ -175,8 +187,10 @@ def simulate(scenario: Scenario, members: int | None = None, seed: int | None = 
         Seed of the random streams (default ``scenario.run.seed``).
     progress : bool, optional
         Show a progress bar (default ``scenario.run.progress``; only for long runs).
-    forcing : (DataFrame, dict), optional
-        Forcing already read by :func:`load_forcing`.
+    forcing : DataFrame or (DataFrame, dict), optional
+        Forcing already read: the table of :func:`pondsim.read_weather` (metadata in
+        ``DataFrame.attrs``) or the ``(table, meta)`` pair of :func:`load_forcing`. A
+        table longer than the study year is cut to it.
     weather_years : list of DataFrame, optional
         Several forcing tables of the study year's calendar (e.g. from
         :mod:`pondsim.forcing.years`); each becomes a weather year of the ensemble.
@@ -194,10 +208,11 @@ def simulate(scenario: Scenario, members: int | None = None, seed: int | None = 
     seed = scenario.run.seed if seed is None else int(seed)
     show = scenario.run.progress if progress is None else progress
     if weather_years is None:
-        table, meta = load_forcing(scenario) if forcing is None else forcing
+        table, meta = load_forcing(scenario) if forcing is None else _given_forcing(
+            forcing, scenario)
         weather_years = [table]
     else:
-        meta = dict(forcing[1]) if forcing is not None else {}
+        meta = _given_forcing(forcing, scenario)[1] if forcing is not None else {}
     hourly_sets = [hourly_light_and_water(t, scenario) for t in weather_years]
     drivers = build_drivers(hourly_sets, scenario, draws)
     dates = hourly_sets[0].index[::HOURS_PER_DAY]

@@ -1,0 +1,190 @@
+"""The validated scenario: frozen dataclasses, one per section of the file."""
+
+from __future__ import annotations
+
+import dataclasses
+import datetime as dt
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from pondsim.scenario.schema import DEFAULT_SEASONS
+
+
+# --------------------------------------------------------------------------------------
+# Dataclasses
+# --------------------------------------------------------------------------------------
+@dataclass(frozen=True)
+class Site:
+    name: str
+    latitude: float | None
+    longitude: float | None
+    elevation_m: float | None
+    utc_offset_h: float | None
+
+
+@dataclass(frozen=True)
+class Weather:
+    source: str
+    path: Path | None
+    format: str
+    wind_height_m: float
+    max_gap_h: int
+    normals: dict[str, tuple[float, ...]] | None
+
+
+@dataclass(frozen=True)
+class Pond:
+    area_m2: float
+    count: int
+    depth_m: float
+    ground_temperature_c: float | None
+    ground_conductance_w_m2_k: float
+    makeup_temperature_c: float | None
+    heat_input_w_m2: float
+    water_emissivity: float
+    refractive_index: float
+
+    @property
+    def farm_area_m2(self) -> float:
+        """Water surface of all ponds [m2]."""
+        return self.area_m2 * self.count
+
+    @property
+    def volume_m3(self) -> float:
+        """Culture volume of one pond [m3]."""
+        return self.area_m2 * self.depth_m
+
+
+@dataclass(frozen=True)
+class Light:
+    par_fraction: float | None
+    photons_per_joule_umol: float | None
+
+
+@dataclass(frozen=True)
+class Strain:
+    name: str
+    growth_form: str
+    mu_max_per_d: float
+    light_model: str
+    light_param_umol_m2_s: float
+    t_min_c: float
+    t_opt_c: float
+    t_max_c: float
+    maintenance_per_d: float
+    maintenance_theta: float
+    maintenance_t_ref_c: float
+    k_biomass_m2_g: float
+    k_background_per_m: float
+    nutrient_limit_g_m3: float | None
+    capacity_table_g_m3: tuple[float, ...] | None
+
+
+@dataclass(frozen=True)
+class Inoculation:
+    start_date: dt.date | None
+    density_g_m3: float
+    restart_days: int
+
+
+@dataclass(frozen=True)
+class Harvest:
+    hour: int
+    recovery_efficiency: float
+    capacity_m3_per_d: float | None
+    min_density_g_m3: float
+
+
+@dataclass(frozen=True)
+class Policy:
+    name: str
+    type: str
+    fraction: float | None = None
+    every_days: int = 1
+    trigger_g_m3: float | None = None
+    residual_g_m3: float | None = None
+
+
+@dataclass(frozen=True)
+class Crash:
+    enabled: bool
+    base_hazard_per_d: float
+    stress_hazard_per_d: float
+    overshoot_onset: float
+    window_days: int
+    drop_scale: float
+    loss_fraction: float
+    max_season_probability: float
+
+
+@dataclass(frozen=True)
+class Season:
+    name: str
+    months: tuple[int, ...]
+
+
+@dataclass(frozen=True)
+class Plan:
+    """A season plan: one policy name per season."""
+
+    name: str
+    policy_by_season: dict[str, str]
+
+
+@dataclass(frozen=True)
+class Uncertain:
+    """One uncertain strain parameter: its distribution around the scenario value."""
+
+    parameter: str
+    distribution: str
+    sd: float | None = None
+    sigma: float | None = None
+    low: float | None = None
+    high: float | None = None
+
+
+@dataclass(frozen=True)
+class Uncertainty:
+    weather_years: int
+    draws: int
+    sobol_samples: int
+    parameters: tuple[Uncertain, ...] = ()
+
+
+@dataclass(frozen=True)
+class Run:
+    members: int
+    seed: int
+    progress: bool
+
+
+@dataclass(frozen=True)
+class Scenario:
+    """A validated study description. Build it with :func:`load_scenario`."""
+
+    study_name: str
+    year: int
+    site: Site
+    weather: Weather
+    pond: Pond
+    light: Light
+    strain: Strain
+    inoculation: Inoculation
+    harvest: Harvest
+    policies: tuple[Policy, ...]
+    run: Run
+    crash: Crash = None  # type: ignore[assignment]
+    seasons: tuple[Season, ...] = tuple(Season(n, m) for n, m in DEFAULT_SEASONS)
+    plans: tuple[Plan, ...] = ()
+    uncertainty: Uncertainty = Uncertainty(20, 16, 64)
+    path: Path | None = None
+    extra: dict = field(default_factory=dict, compare=False)
+
+    def replace(self, **changes) -> Scenario:
+        """Return a copy with top-level fields replaced."""
+        return dataclasses.replace(self, **changes)
+
+
+NO_HARVEST = Policy(name="no harvest", type="none")
+
+
