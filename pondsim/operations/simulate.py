@@ -225,8 +225,8 @@ def simulate(scenario: Scenario, members: int | None = None, seed: int | None = 
     try:
         daily = integrate(drivers, rules, operation_of(scenario),
                           set_of_member=set_of_member, crash=crash_model_of(scenario),
-                          seed=seed, stream_of_member=stream,
-                          progress=None if bar is None else (lambda d: bar.update(1)))
+                          seed=seed, stream_of_member=stream, engine=scenario.run.engine,
+                          progress=None if bar is None else (lambda d: bar.update(d - bar.n)))
     finally:
         if bar is not None:
             bar.close()

@@ -156,6 +156,7 @@ class Run:
     members: int
     seed: int
     progress: bool
+    engine: str = "numpy"
 
 
 @dataclass(frozen=True)

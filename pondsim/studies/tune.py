@@ -48,6 +48,7 @@ class Ensemble:
     crash: object
     seed: int
     depth_m: float
+    engine: str = "numpy"
 
 
 def candidates(k_mean: float) -> list[Policy]:
@@ -82,7 +83,8 @@ def evaluate(ens: Ensemble, plans: list[list[Policy]], period_of_day, season: in
     set_of_member = np.tile(ens.set_of_member, n)
     stream = np.tile(np.arange(ens.per_candidate), n)  # common random numbers
     daily = integrate(ens.drivers, rules, ens.operation, set_of_member=set_of_member,
-                      crash=ens.crash, seed=ens.seed, stream_of_member=stream)
+                      crash=ens.crash, seed=ens.seed, stream_of_member=stream,
+                      engine=ens.engine)
     in_season = np.asarray(period_of_day) == season
     last = int(np.flatnonzero(in_season)[-1])
     harvested = daily.removed[:, in_season].sum(axis=1) * ens.operation.recovery_efficiency
@@ -277,7 +279,7 @@ def tune_scenario(scenario, *, n_years: int, members: int, seed: int | None = No
     ens = Ensemble(drivers=drivers, per_candidate=drivers.n_sets * members,
                    set_of_member=np.repeat(np.arange(drivers.n_sets), members),
                    operation=operation_of(scenario), crash=crash_model_of(scenario),
-                   seed=seed, depth_m=scenario.pond.depth_m)
+                   seed=seed, depth_m=scenario.pond.depth_m, engine=scenario.run.engine)
     dates = hourly[0].index[::24]
     bar = None
     if progress:
