@@ -163,7 +163,7 @@ def engines(drivers, op, crash, sizes, memory: bool = False) -> dict:
         rules = _rules(n, drivers.n_days)
         row = {}
         for engine in ("numpy", "compiled"):
-            def call(e=engine):
+            def call(e=engine, rules=rules):
                 return integrate(drivers, rules, op, crash=crash, seed=1, engine=e)
             wall, _ = _timed(call)
             row[engine] = {"wall_s": wall, "steps_per_s": n * drivers.n_hours / wall}
@@ -256,7 +256,7 @@ def run(scenario_path=DEMO, sizes=(1, 100, 10_000), ivp_members: int = 3, *,
     print(f"scenario: {scenario_path}  ({drivers.n_days} days, growth form "
           f"{drivers.growth_form}, light model {drivers.light_model}); "
           f"load average {os.getloadavg()[0]:.1f} on {os.cpu_count()} cores\n")
-    print("stages of one weather year (best of %d):" % repeat)
+    print(f"stages of one weather year (best of {repeat}):")
     for name, s in report["stages"].items():
         print(f"  {name:<32} {s * 1e3:>9.1f} ms")
 
