@@ -223,6 +223,7 @@ def cmd_run(args) -> int:
 
     _check_members(args.members)
     scenario = load_scenario(args.scenario)
+    _check_memory(scenario, args.members or scenario.run.members)
     out = Path(args.out) if args.out else Path("out") / Path(args.scenario).stem
     t0 = time.perf_counter()
     ds = simulate(scenario, members=args.members, seed=args.seed)
@@ -264,6 +265,13 @@ def _check_members(n):
     _check_count(n, "--members", high=1_000_000)
 
 
+def _check_memory(scenario, members, n_sets=1):
+    """Refuse, with the estimate and the limit, a run whose daily outputs would not fit."""
+    from pondsim.operations.simulate import check_memory
+
+    check_memory(scenario, members, n_sets)
+
+
 def cmd_compare(args) -> int:
     from pondsim.glossary import CAUTION
     from pondsim.operations.simulate import crash_model_of, simulate
@@ -274,6 +282,7 @@ def cmd_compare(args) -> int:
     _check_members(args.members)
     scenario = load_scenario(args.scenario)
     members = args.members or max(scenario.run.members, 200)
+    _check_memory(scenario, members)
     crash = crash_model_of(scenario)
     if crash is None:
         from pondsim.operations.crash import CrashModel
@@ -337,6 +346,7 @@ def cmd_outlook(args) -> int:
     n_years = args.years or unc.weather_years
     n_draws = (args.draws or unc.draws) if unc.parameters else 1
     seed = scenario.run.seed if args.seed is None else args.seed
+    _check_memory(scenario, args.members, n_years * n_draws)
     out = Path(args.out) if args.out else Path("out") / f"{Path(args.scenario).stem}-outlook"
     t0 = time.perf_counter()
     ds, meta = run_outlook(scenario, n_years=n_years, n_draws=n_draws,
