@@ -55,7 +55,7 @@ def test_memory_estimate_is_the_measured_size(demo, tmp_path):
     scenario, forcing = demo
     # The compiled engine: tracemalloc would slow the numpy engine's many small arrays.
     scenario = scenario.replace(run=dataclasses.replace(scenario.run, engine="compiled"))
-    members = 100
+    members = 50
     sim.simulate(scenario, members=2, forcing=forcing, progress=False)  # warm caches
     tracemalloc.start()
     try:

@@ -40,6 +40,7 @@ import numpy as np
 from pondsim.operations.engine import HOURS_PER_DAY, check_closure, integrate
 from pondsim.operations.harvest import RULE_CODES, HarvestRules
 from pondsim.operations.simulate import (
+    _light_and_water,
     build_drivers,
     crash_model_of,
     hourly_light_and_water,
@@ -137,8 +138,9 @@ def stages(scenario, repeat: int = 3) -> dict:
 
     out = {}
     out["read weather"], (forcing, _) = _timed(lambda: load_forcing(scenario), repeat)
-    out["light + thermal"], hourly = _timed(
-        lambda: hourly_light_and_water(forcing, scenario), repeat)
+    # Uncached: the cost of one weather year's physics when it is first needed.
+    out["light + thermal"], hourly = _timed(lambda: _light_and_water(forcing, scenario),
+                                            repeat)
     out["K solve"], drivers = _timed(lambda: build_drivers(hourly, scenario), repeat)
     op, crash = operation_of(scenario), crash_model_of(scenario)
     rules = _rules(1, drivers.n_days)
