@@ -253,6 +253,66 @@ def get_fertiliser(fertiliser) -> Fertiliser:
 
 
 # ---------------------------------------------------------------------------------------
+# Biomass composition
+# ---------------------------------------------------------------------------------------
+
+#: Default biomass formula per carbon atom: Chisti (2007) section 3, after Grobbelaar
+#: (2004), as quoted in the scenario schema (``inputs.composition_formula``).
+DEFAULT_BIOMASS_FORMULA = "CO0.48H1.83N0.11P0.01"
+
+
+def biomass_composition(formula: str = DEFAULT_BIOMASS_FORMULA, carbon_fraction=None,
+                        n_fraction=None, p_fraction=None) -> dict:
+    """Carbon, nitrogen and phosphorus mass fractions of dry biomass.
+
+    Parameters
+    ----------
+    formula : str
+        Elemental formula with decimal counts, e.g. ``"CO0.48H1.83N0.11P0.01"``
+        (elements C, H, O, N, P, S).
+    carbon_fraction, n_fraction, p_fraction : float, optional [kg kg-1]
+        Measured fractions that replace the formula's.
+
+    Returns
+    -------
+    dict
+        ``carbon_fraction``, ``n_fraction``, ``p_fraction`` [kg kg-1],
+        ``co2_per_kg`` [kg CO2 per kg biomass at full uptake], ``molar_mass`` [g per
+        mol of formula] and ``source`` (text).
+
+    Notes
+    -----
+    .. math:: w_E = \\frac{a_E\\,M_E}{\\sum_k a_k M_k}
+
+    with the standard atomic weights :data:`ATOMIC_WEIGHTS` (IUPAC/CIAAW 2021, abridged).
+    For the default formula: M = 23.386 g mol-1, C 0.5136, N 0.0659, P 0.01324 and
+    1.882 kg CO2 per kg.
+    """
+    from pondsim.scenario.parse import biomass_formula_counts
+
+    counts = biomass_formula_counts(formula)
+    if counts is None or not set(counts) <= set(ATOMIC_WEIGHTS) or not counts.get("C"):
+        raise InputError(f"cannot read biomass formula {formula!r}; allowed: a formula "
+                         "like CO0.48H1.83N0.11P0.01", field="inputs.composition_formula")
+    mass = sum(ATOMIC_WEIGHTS[el] * a for el, a in counts.items())
+    frac = {el: ATOMIC_WEIGHTS[el] * counts.get(el, 0.0) / mass for el in ("C", "N", "P")}
+    given = {"carbon_fraction": carbon_fraction, "n_fraction": n_fraction,
+             "p_fraction": p_fraction}
+    out = {"carbon_fraction": frac["C"], "n_fraction": frac["N"], "p_fraction": frac["P"]}
+    measured = [k for k, v in given.items() if v is not None]
+    for k in measured:
+        out[k] = float(given[k])
+    src = f"composition {formula} (IUPAC 2021 atomic weights)"
+    if formula == DEFAULT_BIOMASS_FORMULA:
+        src += " as quoted by Chisti (2007) Biotechnol. Adv. 25:294-306, sect. 3"
+    if measured:
+        src += "; measured " + ", ".join(f"{k} = {given[k]:g}" for k in measured)
+    out.update(co2_per_kg=out["carbon_fraction"] * CO2_PER_C, molar_mass=float(mass),
+               source=src)
+    return out
+
+
+# ---------------------------------------------------------------------------------------
 # Carbon and nutrients
 # ---------------------------------------------------------------------------------------
 
