@@ -76,10 +76,12 @@ def test_co2_demand_keeps_series():
 
 
 def test_nutrient_demand_defaults():
-    # REFERENCES.md: N ~6-8 %, P ~1 % of dry weight [R/M]
+    # defaults from the biomass formula CO0.48H1.83N0.11P0.01 (Chisti 2007, sect. 3) with
+    # the IUPAC weights typed above [R]
+    m = C + 0.48 * O + 1.83 * H + 0.11 * N + 0.01 * P
     n, p = comp.nutrient_demand(np.array([0.0, 100.0]))
-    assert n.tolist() == pytest.approx([0.0, 7.0], rel=1e-12)
-    assert p.tolist() == pytest.approx([0.0, 1.0], rel=1e-12)
+    assert n.tolist() == pytest.approx([0.0, 100 * 0.11 * N / m], rel=1e-12)
+    assert p.tolist() == pytest.approx([0.0, 100 * 0.01 * P / m], rel=1e-12)
 
 
 def test_redfield_mass_ratios():
@@ -183,8 +185,8 @@ def test_makeup_water_floors_net_evaporation_per_period():
 # --- hydraulics ------------------------------------------------------------------------
 
 def test_manning_worked_example_rectangular_channel():
-    # Worked problem, San Diego State University CIVE 530 (midterm 1, problem 4, fall
-    # 2008; facets.sdsu.edu): rectangular channel b = 6 m, y = 1.6 m, n = 0.015,
+    # Published worked problem (San Diego State University civil engineering, 2008;
+    # facets.sdsu.edu): rectangular channel b = 6 m, y = 1.6 m, n = 0.015,
     # S0 = 0.0025 -> R = 1.043 m, v = 3.428 m/s, Q = 32.91 m3/s (printed, rounded steps)
     r = mix.hydraulic_radius_rectangular(6.0, 1.6)
     assert r == pytest.approx(1.043, abs=5e-4)
@@ -194,7 +196,7 @@ def test_manning_worked_example_rectangular_channel():
 
 
 def test_manning_second_worked_example():
-    # Same source (CIVE 530 midterm 2, problem 1, spring 2007; jon.sdsu.edu): b = 5 m,
+    # Same publisher (2007; jon.sdsu.edu): b = 5 m,
     # y = 0.8 m, n = 0.015, S0 = 0.0025 -> R = 0.606 m, v = 2.387 m/s, Q = 9.548 m3/s
     r = mix.hydraulic_radius_rectangular(5.0, 0.8)
     v = mix.manning_velocity(r, 0.0025, 0.015)
@@ -312,9 +314,11 @@ def test_bill_values():
     bill = inputs.inputs_bill(harvested, evap, rain, farm, params=params)
     y = bill.loc["year"]
     total_kg = harvested.sum()
-    assert y["co2_t"] == pytest.approx(comp.co2_demand(total_kg, 0.5, 0.7) / 1000)
-    assert y["n_t"] == pytest.approx(0.07 * total_kg / 1000)
-    assert y["p_t"] == pytest.approx(0.01 * total_kg / 1000)
+    d = comp.DEFAULT_COMPOSITION
+    assert y["co2_t"] == pytest.approx(comp.co2_demand(total_kg, d["carbon_fraction"],
+                                                       0.7) / 1000)
+    assert y["n_t"] == pytest.approx(d["n_fraction"] * total_kg / 1000)
+    assert y["p_t"] == pytest.approx(d["p_fraction"] * total_kg / 1000)
     # fertilisers supply exactly the N and P
     dap, urea = comp.FERTILISERS["dap_18_46_0"], comp.FERTILISERS["urea"]
     assert y["dap_18_46_0_t"] * dap.p_fraction == pytest.approx(y["p_t"])

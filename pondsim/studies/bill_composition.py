@@ -8,8 +8,12 @@ of fertilisers are computed from their formulas here, never typed in.
 References
 ----------
 Chisti, Y. (2007) Biodiesel from microalgae. *Biotechnol. Adv.* 25:294-306.
-doi:10.1016/j.biotechadv.2007.02.001 (about 50 % carbon in dry algal biomass, so
-1.83 kg CO2 per kg; from memory).
+doi:10.1016/j.biotechadv.2007.02.001. Section 3 gives the approximate biomass formula
+CO0.48H1.83N0.11P0.01 (after Grobbelaar 2004) used as the default composition; the
+formula was taken from secondary citations, the page itself was not re-read here.
+
+Serejo, M. L. et al. (2015) *Environ. Sci. Technol.* 49 (abstract): C 49 ± 2 %, N 9 %,
+P 1 % in a pond-grown algal-bacterial biomass over 175 days.
 
 Redfield, A. C. (1958) The biological control of chemical factors in the environment.
 *Am. Sci.* 46:205-221 (C:N:P = 106:16:1 by atoms).
@@ -312,26 +316,29 @@ def biomass_composition(formula: str = DEFAULT_BIOMASS_FORMULA, carbon_fraction=
     return out
 
 
+#: C, N and P fractions of :data:`DEFAULT_BIOMASS_FORMULA` [kg kg-1] (0.5136, 0.0659,
+#: 0.01324), the defaults of :func:`co2_demand` and :func:`nutrient_demand`.
+DEFAULT_COMPOSITION = biomass_composition()
+
+
 # ---------------------------------------------------------------------------------------
 # Carbon and nutrients
 # ---------------------------------------------------------------------------------------
 
-def co2_demand(biomass_kg, carbon_fraction=0.5, utilisation=0.7):
+def co2_demand(biomass_kg, carbon_fraction=DEFAULT_COMPOSITION["carbon_fraction"],
+               utilisation=0.7):
     """CO2 to supply for a mass of biomass.
 
     Parameters
     ----------
     biomass_kg : float, array-like or Series [kg ash-free dry weight]
-    carbon_fraction : float, default 0.5 [kg C kg-1]
-        Carbon in the dry biomass; about 50 % (Chisti 2007, from memory; C 49 ± 2 % was
-        measured over 175 days in a microalgal-bacterial pond culture by Serejo et al.
-        2015, *Environ. Sci. Technol.* 49, abstract).
+    carbon_fraction : float, default 0.5136 [kg C kg-1]
+        Carbon in the dry biomass, from :data:`DEFAULT_BIOMASS_FORMULA` (C 49 ± 2 % was
+        measured in a pond-grown algal-bacterial biomass by Serejo et al. 2015).
     utilisation : float, default 0.7 [-]
         Share of the supplied CO2 that the culture fixes; the rest outgasses. 0.7 is an
-        assumption (common practice): a carbonation column on a raceway transferred 83 %
-        (Putt et al. 2011, *Bioresour. Technol.* 102:3240-3245, abstract); simple
-        diffusers in a sump are lower, 30-90 % being the range usually quoted (from
-        memory).
+        assumption: a carbonation column on a raceway transferred 83 % (Putt et al. 2011,
+        *Bioresour. Technol.* 102:3240-3245, abstract); simple diffusers do worse.
 
     Returns
     -------
@@ -342,22 +349,23 @@ def co2_demand(biomass_kg, carbon_fraction=0.5, utilisation=0.7):
     .. math:: m_{CO_2} = m_X\\, f_C\\, \\frac{M_{CO_2}}{M_C} \\frac{1}{u}
 
     with M(CO2)/M(C) = 44.009/12.011 = 3.664 from the standard atomic weights; 0.5 C and
-    full utilisation give 1.832 kg kg-1 (Chisti's 1.83).
+    full utilisation give 1.832 kg kg-1, the default composition 1.882 kg kg-1.
     """
     return biomass_kg * carbon_fraction * CO2_PER_C / utilisation
 
 
-def nutrient_demand(biomass_kg, n_fraction=0.07, p_fraction=0.01):
+def nutrient_demand(biomass_kg, n_fraction=DEFAULT_COMPOSITION["n_fraction"],
+                    p_fraction=DEFAULT_COMPOSITION["p_fraction"]):
     """Nitrogen and phosphorus taken up into biomass, as elements.
 
     Parameters
     ----------
     biomass_kg : float, array-like or Series [kg ash-free dry weight]
-    n_fraction : float, default 0.07 [kg N kg-1]
-        Nitrogen in the dry biomass; 6-8 % is typical of nutrient-replete microalgae
-        (from memory; 9 % in Serejo et al. 2015, abstract).
-    p_fraction : float, default 0.01 [kg P kg-1]
-        Phosphorus; about 1 % (from memory; 1 % in Serejo et al. 2015, abstract).
+    n_fraction : float, default 0.0659 [kg N kg-1]
+        Nitrogen in the dry biomass, from :data:`DEFAULT_BIOMASS_FORMULA` (9 % in Serejo
+        et al. 2015).
+    p_fraction : float, default 0.01324 [kg P kg-1]
+        Phosphorus, from :data:`DEFAULT_BIOMASS_FORMULA` (1 % in Serejo et al. 2015).
 
     Returns
     -------
@@ -387,9 +395,7 @@ def redfield_n_p(carbon_kg):
     -----
     C:N:P = 106:16:1 by atoms (Redfield 1958), so by mass
     N/C = 16·14.007/(106·12.011) = 0.1760 and P/C = 30.974/(106·12.011) = 0.02433. For
-    biomass of 50 % C this is 8.8 % N and 1.2 % P, a little above the defaults of
-    :func:`nutrient_demand`: phytoplankton grown in culture often carry less N and P per
-    C than the ocean average (from memory).
+    biomass of 50 % C this is 8.8 % N and 1.2 % P.
     """
     c, n, p = REDFIELD_C_N_P
     mc = c * ATOMIC_WEIGHTS["C"]

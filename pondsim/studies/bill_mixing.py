@@ -19,13 +19,10 @@ from pondsim.pond.thermal import WATER_DENSITY
 #: Standard acceleration of gravity [m s-2] (3rd CGPM, 1901; exact by definition).
 GRAVITY = 9.80665
 
-#: Manning roughness n [s m-1/3] of pond channel surfaces. Values as tabulated for lined
-#: channels: Chow (1959) Table 5-6 (from memory: concrete, trowel finish 0.011-0.013-
-#: 0.015 min-normal-max; float finish 0.013-0.015-0.016; unfinished 0.014-0.017-0.020);
-#: the same trowel/float values (0.013 / 0.015, attributed to the Federal Highway
-#: Administration) appear in municipal drainage codes; smooth plastic 0.009-0.011 as
-#: listed in common engineering tables. A biofilm on the liner raises n over a season
-#: (from memory), so the default uses the float-finish value.
+#: Manning roughness n [s m-1/3] of pond channel surfaces. Assumptions of the order that
+#: Chow (1959) Table 5-6 tabulates for lined channels (the numbers were not re-checked
+#: against the table here). A biofilm on the liner raises n over a season, so the
+#: default uses the float-finish value.
 MANNING_N = {
     "plastic_liner": 0.010,
     "concrete_trowel": 0.013,
@@ -38,15 +35,15 @@ MANNING_N = {
 DEFAULT_MANNING_N = MANNING_N["concrete_float"]
 
 #: Loss coefficient of one 180° bend of a raceway, in units of the velocity head
-#: v²/(2g) [-]. The value 2 is the one used in raceway design texts for unbaffled
-#: hairpin bends (Chisti 2016, "Large-scale production of algal biomass: raceway
-#: ponds", in Bux & Chisti (eds.) *Algae Biotechnology*, Springer) -- from memory, not
-#: verified against the text. Baffled or flow-deflecting bends lose less.
+#: v²/(2g) [-]. Assumption: 2 for an unbaffled hairpin bend (raceway design texts such as
+#: Chisti 2016, "Large-scale production of algal biomass: raceway ponds", in Bux &
+#: Chisti (eds.) *Algae Biotechnology*, Springer, treat bend losses in velocity heads;
+#: the value was not checked against that text). Baffled bends lose less.
 BEND_LOSS_K = 2.0
 
-#: Wire-to-water efficiency of a paddlewheel drive [-]. Paddlewheels are inefficient
-#: pumps; 10-20 % is the usual range quoted for raceway paddlewheels and 0.17 is used in
-#: raceway design examples (from memory, not verified).
+#: Wire-to-water efficiency of a paddlewheel drive [-]. Assumption: 0.17 = paddlewheel
+#: 0.2 × drive 0.85 (the scenario's ``inputs.paddlewheel_efficiency`` and
+#: ``inputs.drive_efficiency`` defaults).
 PADDLEWHEEL_EFFICIENCY = 0.17
 
 #: Design mean channel velocity of a raceway [m s-1]; 0.2-0.3 m s-1 keeps cells in
@@ -125,7 +122,7 @@ def raceway_head_loss(velocity_m_s, channel_width_m, depth_m, channel_length_m, 
     manning_n : float, default 0.015 [s m-1/3]
         See :data:`MANNING_N`.
     bend_k : float, default 2.0 [-]
-        Loss per 180° bend in velocity heads; see :data:`BEND_LOSS_K` (from memory).
+        Loss per 180° bend in velocity heads; see :data:`BEND_LOSS_K` (assumption).
 
     Returns
     -------
@@ -157,7 +154,7 @@ def paddlewheel_power(head_m, flow_m3_s, efficiency=PADDLEWHEEL_EFFICIENCY):
     flow_m3_s : float, array-like or Series [m3 s-1]
         Circulating flow, v·w·d.
     efficiency : float, default 0.17 [-]
-        Wire-to-water efficiency; see :data:`PADDLEWHEEL_EFFICIENCY` (from memory).
+        Wire-to-water efficiency; see :data:`PADDLEWHEEL_EFFICIENCY` (assumption).
 
     Returns
     -------

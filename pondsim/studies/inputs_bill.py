@@ -18,6 +18,7 @@ import pandas as pd
 
 from pondsim.errors import InputError, did_you_mean
 from pondsim.studies.bill_composition import (
+    DEFAULT_COMPOSITION,
     co2_demand,
     fertiliser_plan,
     get_fertiliser,
@@ -48,20 +49,20 @@ class InputsParams:
 
     Attributes
     ----------
-    carbon_fraction : float, default 0.5 [kg C kg-1]
-        See :func:`co2_demand` (Chisti 2007, from memory).
+    carbon_fraction : float, default 0.5136 [kg C kg-1]
+        From the default biomass formula (:func:`co2_demand`).
     co2_utilisation : float, default 0.7 [-]
         See :func:`co2_demand` (common practice).
-    n_fraction : float, default 0.07 [kg N kg-1]
-        See :func:`nutrient_demand` (from memory).
-    p_fraction : float, default 0.01 [kg P kg-1]
-        See :func:`nutrient_demand` (from memory).
+    n_fraction : float, default 0.0659 [kg N kg-1]
+        From the default biomass formula (:func:`nutrient_demand`).
+    p_fraction : float, default 0.01324 [kg P kg-1]
+        From the default biomass formula (:func:`nutrient_demand`).
     n_fertiliser : str, default "urea"
     p_fertiliser : str, default "dap_18_46_0"
         Products; see :data:`FERTILISERS` and :func:`fertiliser_plan`.
     recycle_fraction : float, default 0.9 [-]
         Share of harvested medium returned to the ponds after dewatering. Farm designs
-        commonly recycle most of it (common practice; 0.9 from memory of design studies);
+        commonly recycle most of it (assumption);
         set 0 for the conservative case of no recycling.
     harvest_density_g_m3 : float, default 500 [g m-3]
         Culture density at harvest, used only to turn a harvested mass into a harvested
@@ -70,9 +71,9 @@ class InputsParams:
     manning_n : float, default 0.015 [s m-1/3]
         See :data:`MANNING_N`.
     bend_k : float, default 2.0 [-]
-        See :data:`BEND_LOSS_K` (from memory).
+        See :data:`BEND_LOSS_K` (assumption).
     paddlewheel_efficiency : float, default 0.17 [-]
-        See :data:`PADDLEWHEEL_EFFICIENCY` (from memory).
+        See :data:`PADDLEWHEEL_EFFICIENCY` (assumption).
     mixing_hours_per_day : float, default 24 [h d-1]
         Paddlewheels usually run around the clock to keep cells suspended (common
         practice); fewer hours scale the energy linearly.
@@ -82,10 +83,10 @@ class InputsParams:
     n_channels : int, default 2
     """
 
-    carbon_fraction: float = 0.5
+    carbon_fraction: float = DEFAULT_COMPOSITION["carbon_fraction"]
     co2_utilisation: float = 0.7
-    n_fraction: float = 0.07
-    p_fraction: float = 0.01
+    n_fraction: float = DEFAULT_COMPOSITION["n_fraction"]
+    p_fraction: float = DEFAULT_COMPOSITION["p_fraction"]
     n_fertiliser: str = "urea"
     p_fertiliser: str = "dap_18_46_0"
     recycle_fraction: float = 0.9
