@@ -295,9 +295,10 @@ def daily_quantities(ds: xr.Dataset, policy: str, inputs: Inputs, *, area_m2: fl
         key = "p_fertiliser_per_t" if name == pf.name else "n_fertiliser_per_t"
         lines.append(Line(
             name, f"{name}_t", "t product",
-            f"supplies N {comp['n_fraction']:.4f} and P {comp['p_fraction']:.4f} of the "
-            f"uptake less recycle (N {inputs.n_recycle_fraction:g}, P "
-            f"{inputs.p_recycle_fraction:g}); the P product's N is credited",
+            f"supplies N {100 * comp['n_fraction']:.2f} % and P "
+            f"{100 * comp['p_fraction']:.2f} % of the biomass taken up, less recycle (N "
+            f"{inputs.n_recycle_fraction:g}, P {inputs.p_recycle_fraction:g}); the P "
+            "product's N is credited",
             f"{comp_src}; {fert.basis}", key, "t-1", name))
     lines += [
         Line("makeup water", "makeup_water_m3", "m3", f"{water_basis} over "
@@ -313,7 +314,9 @@ def daily_quantities(ds: xr.Dataset, policy: str, inputs: Inputs, *, area_m2: fl
              + _source("inputs", "velocity_m_s", inputs.velocity_m_s),
              "electricity_per_mwh", "MWh-1", "mixing"),
         Line("harvest electricity", "harvest_MWh", "MWh",
-             "harvested culture volume x inputs.harvest_kwh_per_m3",
+             "harvested culture volume x inputs.harvest_kwh_per_m3"
+             if inputs.harvest_kwh_per_m3 is not None else
+             "NOT COUNTED: inputs.harvest_kwh_per_m3 not set",
              _source("inputs", "harvest_kwh_per_m3", inputs.harvest_kwh_per_m3),
              "electricity_per_mwh", "MWh-1", "harvest_energy"),
         Line("harvest and dewatering", "harvest_volume_m3", "m3", "culture volume sent "
@@ -497,9 +500,15 @@ def describe(bill: Bill) -> str:
         out.append(f"  {'total':>23}: {year[f'total_cost_{cur}']:>12,.0f} {cur} per year")
         row = bill.cost_per_t.iloc[0]
         out.append(f"cost per tonne of product over {int(row['members'])} members "
-                   f"[{cur} t-1]: P90 {row[f'P90_{cur}_per_t']:,.0f} (low: exceeded in 90 "
-                   f"% of members), P50 {row[f'P50_{cur}_per_t']:,.0f}, P10 "
-                   f"{row[f'P10_{cur}_per_t']:,.0f} (conservative: exceeded in only 10 %)")
+                   f"[{cur} t-1], 95 % intervals in brackets:")
+        meaning = {"P90": "low, optimistic: exceeded in 90 % of members",
+                   "P50": "median", "P10": "CONSERVATIVE: exceeded in only 10 %"}
+        for name, text in meaning.items():
+            col = f"{name}_{cur}_per_t"
+            lo, hi = row[f"{col}_low"], row[f"{col}_high"]
+            interval = "too few members for an interval" if np.isnan(lo) or np.isnan(hi) \
+                else f"{lo:,.0f} to {hi:,.0f}"
+            out.append(f"  {name} {row[col]:>10,.0f}  ({text}) [{interval}]")
     for note in bill.notes:
         out.append(f"  note: {note}")
     return "\n".join(out)
