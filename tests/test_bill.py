@@ -12,7 +12,14 @@ import pytest
 import xarray as xr
 
 from pondsim.errors import InputError
-from pondsim.scenario import SCHEMA, Inputs, Prices, load_scenario, parse_scenario
+from pondsim.scenario import (
+    INPUTS_KEYS,
+    PRICES_KEYS,
+    Inputs,
+    Prices,
+    load_scenario,
+    parse_scenario,
+)
 from pondsim.studies import bill as B
 from pondsim.studies.bill_composition import FERTILISERS, biomass_composition
 
@@ -78,7 +85,8 @@ def test_pond_mixing_by_hand():
     # No published raceway worked example with numbers could be opened in the reference
     # library for this check (a design text's example remains to be added); the Manning
     # kernel itself is checked against published worked channel problems in
-    # tests/test_inputs.py. Here the assembly is recomputed by hand: Manning friction S = (n v / R^(2/3))^2 over the flow path L = A / w, plus
+    # tests/test_inputs.py. Here the assembly is recomputed by hand: Manning friction
+    # S = (n v / R^(2/3))^2 over the flow path L = A / w, plus
     # 2 bends x k v^2/(2 g); P = rho g Q h / (eta_pw eta_drive) [R, Chow 1959 ch. 5 form]
     inp = _inputs(channel_width_m=5.0, velocity_m_s=0.3, manning_n=0.015,
                   bend_loss_k=2.0, paddlewheel_efficiency=0.2, drive_efficiency=0.85)
@@ -295,21 +303,21 @@ def test_quantile_interval_covers_the_true_quantile():
 # --- scenario sections -----------------------------------------------------------------
 
 def test_dataclass_defaults_are_the_schema_defaults():
-    for cls, section in ((Inputs, "inputs"), (Prices, "prices")):
+    for cls, keys in ((Inputs, INPUTS_KEYS), (Prices, PRICES_KEYS)):
         defaults = {f.name: f.default for f in dataclasses.fields(cls)}
-        assert defaults == {k: key.default for k, key in SCHEMA[section].items()}
+        assert defaults == {k: key.default for k, key in keys.items()}
 
 
 def test_fertiliser_choices_match_the_products():
-    assert set(SCHEMA["inputs"]["n_fertiliser"].choices) <= set(FERTILISERS)
-    assert set(SCHEMA["inputs"]["p_fertiliser"].choices) <= set(FERTILISERS)
-    for name in SCHEMA["inputs"]["p_fertiliser"].choices:
+    assert set(INPUTS_KEYS["n_fertiliser"].choices) <= set(FERTILISERS)
+    assert set(INPUTS_KEYS["p_fertiliser"].choices) <= set(FERTILISERS)
+    for name in INPUTS_KEYS["p_fertiliser"].choices:
         assert FERTILISERS[name].p_fraction > 0
 
 
 def test_every_inputs_default_cites_a_source_or_says_assumption():
     # the issue: no default may reach an output without its source or an "assumption"
-    for name, key in SCHEMA["inputs"].items():
+    for name, key in INPUTS_KEYS.items():
         if key.default is None or name in ("n_fertiliser", "p_fertiliser",
                                            "bends_per_circuit"):
             continue

@@ -36,9 +36,11 @@ from pondsim.scenario.parse import (
 from pondsim.scenario.schema import (
     DEFAULT_SEASONS,
     DISTRIBUTIONS,
+    INPUTS_KEYS,
     MONTHS,
     PLAN_KEYS,
     POLICY_KEYS,
+    PRICES_KEYS,
     SCHEMA,
     SEASON_KEYS,
     UNCERTAINTY_KEYS,
@@ -51,6 +53,7 @@ __all__ = [
     "Pond", "Prices", "Run",
     "Scenario", "Season", "Site", "Strain", "Uncertain", "Uncertainty", "Weather",
     "TOP_LEVEL", "UNCERTAIN_PARAMETERS", "load_scenario", "parse_scenario", "relocate_text",
-    "DEFAULT_SEASONS", "DISTRIBUTIONS", "MONTHS", "PLAN_KEYS", "POLICY_KEYS", "SCHEMA",
+    "DEFAULT_SEASONS", "DISTRIBUTIONS", "INPUTS_KEYS", "MONTHS", "PLAN_KEYS", "POLICY_KEYS",
+    "PRICES_KEYS", "SCHEMA",
     "SEASON_KEYS", "UNCERTAINTY_KEYS", "Key", "schema_markdown",
 ]

@@ -35,9 +35,11 @@ from pondsim.scenario.model import (
 from pondsim.scenario.schema import (
     DEFAULT_SEASONS,
     DISTRIBUTIONS,
+    INPUTS_KEYS,
     MONTHS,
     PLAN_KEYS,
     POLICY_KEYS,
+    PRICES_KEYS,
     SCHEMA,
     SEASON_KEYS,
     UNCERTAINTY_KEYS,
@@ -142,7 +144,7 @@ def _parse_table(table, keys: dict[str, Key], path, prefix: str, base_dir: Path)
 
 
 TOP_LEVEL = tuple(s for s in SCHEMA if "." not in s) + ("policy", "season", "plan",
-                                                          "uncertainty")
+                                                          "uncertainty", "inputs", "prices")
 
 
 def parse_scenario(data: dict, path: str | Path | None = None) -> Scenario:
@@ -192,8 +194,10 @@ def parse_scenario(data: dict, path: str | Path | None = None) -> Scenario:
         inoculation=inoc, harvest=Harvest(**sec["harvest"]), policies=policies,
         run=Run(**sec["run"]), crash=Crash(**sec["crash"]), seasons=seasons, plans=plans,
         uncertainty=_parse_uncertainty(data.get("uncertainty", {}), strain, path, base_dir),
-        inputs=_check_inputs(Inputs(**sec["inputs"]), path),
-        prices=_check_prices(Prices(**sec["prices"]), path),
+        inputs=_check_inputs(Inputs(**_parse_table(data.get("inputs", {}), INPUTS_KEYS, path,
+                                                   "inputs", base_dir)), path),
+        prices=_check_prices(Prices(**_parse_table(data.get("prices", {}), PRICES_KEYS, path,
+                                                   "prices", base_dir)), path),
         path=Path(path).resolve() if path else None,
     )
 

@@ -36,7 +36,7 @@ from scipy import stats
 
 from pondsim.errors import InputError, did_you_mean
 from pondsim.scenario.model import Inputs, Prices
-from pondsim.scenario.schema import SCHEMA
+from pondsim.scenario.schema import INPUTS_KEYS, PRICES_KEYS
 from pondsim.studies.bill_composition import (
     CO2_PER_C,
     biomass_composition,
@@ -60,7 +60,7 @@ COST_EXCEEDANCE = {"P90": 0.9, "P50": 0.5, "P10": 0.1}
 def _source(section: str, name: str, value) -> str:
     """Where a setting comes from: the schema's own documentation when the scenario kept
     the default, else the scenario."""
-    key = SCHEMA[section][name]
+    key = {"inputs": INPUTS_KEYS, "prices": PRICES_KEYS}[section][name]
     shown = "not set" if value is None else f"{value:g}" if isinstance(value, float) \
         else str(value)
     if value == key.default:
@@ -516,7 +516,7 @@ def describe(bill: Bill) -> str:
 
 def default_inputs() -> Inputs:
     """The ``[inputs]`` of a scenario that gives none (the schema's defaults)."""
-    return Inputs(**{k: key.default for k, key in SCHEMA["inputs"].items()})
+    return Inputs(**{k: key.default for k, key in INPUTS_KEYS.items()})
 
 
 __all__ = ["Bill", "COST_EXCEEDANCE", "Line", "cost_per_tonne_table", "daily_quantities",
