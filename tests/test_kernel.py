@@ -32,7 +32,8 @@ from pondsim.operations.crash import CrashModel
 from pondsim.operations.harvest import HarvestRules, removal_fraction
 
 RTOL, ATOL = 1e-5, 1e-9
-FIELDS = ("density", "removed", "harvest_fraction", "growth_rate", "lost", "sampled")
+FIELDS = ("density", "removed", "harvest_fraction", "growth_rate", "lost", "sampled",
+          "grown", "respired")
 
 
 def assert_same(a: engine.Daily, b: engine.Daily):

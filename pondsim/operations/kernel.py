@@ -195,7 +195,7 @@ def _run(par, ftemp, maint, cap, rtab, mu, param, tau_s, tau_z, form, light, dar
          set_of, code, fraction, every, trigger, residual, period_of_day,
          op_int, op_float, crash_on, k_smooth, k_fall, table, stream_of, crash_par,
          o_density, o_removed, o_frac, o_growth, o_lost, o_crashed, o_hazard, o_status,
-         o_sampled, ledger):
+         o_sampled, o_grown, o_respired, ledger):
     n = set_of.shape[0]
     n_days = o_density.shape[1]
     start_day, restart_days, harvest_hour, sample_hour = op_int[0], op_int[1], op_int[2], \
@@ -215,6 +215,8 @@ def _run(par, ftemp, maint, cap, rtab, mu, param, tau_s, tau_z, form, light, dar
         rate_sum = np.zeros(nb)
         inv_k = np.zeros(nb)
         tot = np.zeros((nb, 5))  # inoculated, grown, respired, removed, lost
+        grown_before = np.zeros(nb)
+        respired_before = np.zeros(nb)
         for day in range(n_days):
             for b in range(nb):
                 if (status[b] == STATUS_NOT_STARTED and day >= start_day) or \
@@ -299,6 +301,11 @@ def _run(par, ftemp, maint, cap, rtab, mu, param, tau_s, tau_z, form, light, dar
                 s = set_of[j]
                 growing = status[b] == STATUS_GROWING
                 o_growth[j, day] = rate_sum[b] / HOURS_PER_DAY if growing else 0.0
+                # daily terms from the running ledger totals, as the numpy engine books them
+                o_grown[j, day] = tot[b, 1] - grown_before[b]
+                o_respired[j, day] = tot[b, 2] - respired_before[b]
+                grown_before[b] = tot[b, 1]
+                respired_before[b] = tot[b, 2]
                 since[b] += 1
                 if crash_on:
                     h = 0.0
@@ -384,6 +391,7 @@ def integrate_compiled(drivers: Drivers, rules: HarvestRules, operation: Operati
         hazard=np.zeros((n, n_days), dtype=np.float32),
         status=np.zeros((n, n_days), dtype=np.int8), ledger={},
         sampled=None if op.sample_hour is None else np.zeros((n, n_days)),
+        grown=np.zeros((n, n_days)), respired=np.zeros((n, n_days)),
     )
     sampled = out.sampled if out.sampled is not None else np.zeros((n, 1))
     ledger = np.zeros((n, 6))
@@ -415,7 +423,8 @@ def integrate_compiled(drivers: Drivers, rules: HarvestRules, operation: Operati
              op_int, op_float, crash is not None, k_smooth, k_fall, table, stream[rows],
              crash_par, out.density[rows], out.removed[rows], out.harvest_fraction[rows],
              out.growth_rate[rows], out.lost[rows], out.crashed[rows], out.hazard[rows],
-             out.status[rows], sampled[rows], ledger[rows])
+             out.status[rows], sampled[rows], out.grown[rows], out.respired[rows],
+             ledger[rows])
         if progress is not None:
             progress(int(round(n_days * hi / n)))
     out.ledger.update({k: ledger[:, i].copy() for i, k in enumerate(_LEDGER)})
