@@ -74,6 +74,7 @@ scenario, members, years, seed and mode (a fingerprint in the file's attributes)
 
 from __future__ import annotations
 
+import contextlib
 import dataclasses
 import hashlib
 import os
@@ -88,7 +89,7 @@ import xarray as xr
 
 from pondsim.errors import InputError
 from pondsim.glossary import CAUTION
-from pondsim.results.files import save
+from pondsim.results.files import OutputSet, save
 from pondsim.scenario import Scenario
 from pondsim.studies.screen_outputs import (
     ScreenReport,
@@ -155,7 +156,7 @@ def _finished(path: Path, fingerprint: str) -> bool:
 def screen(scenario: Scenario, sites, *, members: int | None = None,
            years: int = DEFAULT_YEARS, seed: int | None = None, out=None,
            workers: int | None = None, scheduler=None, resume: bool = False,
-           full: bool = False, progress: bool = True,
+           full: bool = False, progress: bool = True, strict: bool = False,
            log: Callable[[str], None] | None = None) -> ScreenReport:
     """Screen sites: every policy and plan of ``scenario`` at every site.
 
@@ -187,6 +188,9 @@ def screen(scenario: Scenario, sites, *, members: int | None = None,
         sites x policies x members x 365 days).
     progress : bool
         A tqdm bar of sites done.
+    strict : bool
+        A site whose coordinates disagree with its weather
+        (:mod:`pondsim.forcing.sitecheck`) fails instead of running with a warning.
     log : callable, optional
         Where failure messages go (default: the terminal, via the progress bar).
 
@@ -199,15 +203,39 @@ def screen(scenario: Scenario, sites, *, members: int | None = None,
     members = scenario.run.members if members is None else int(members)
     seed = scenario.run.seed if seed is None else int(seed)
     _check_int(members, "--members", 1, 1_000_000)
+    _check_int(seed, "--seed", 0, 2**63 - 1)
     _check_int(years, "--years", 1, 1000)
     if workers is not None:
         _check_int(workers, "--workers", 1, 4096)
     if resume and out is None:
         raise InputError("resume needs an output folder", field="--resume")
     out = None if out is None else Path(out)
+    if strict:
+        scenario = scenario.replace(weather=dataclasses.replace(scenario.weather,
+                                                                site_check="strict"))
+    # the output folder is checked (and staged) before any site runs
+    files = None if out is None else OutputSet(out, command="screen", seed=seed,
+                                               scenario=scenario.path)
+    with contextlib.nullcontext() if files is None else files:
+        report = _screen_sites(scenario, specs, members=members, years=years, seed=seed,
+                               out=out, workers=workers, scheduler=scheduler,
+                               resume=resume, full=full, progress=progress, log=log)
+        if files is not None:
+            files.notes["sites"] = (f"{len(report.ranking)} ({len(report.failures)} "
+                                    "failed)")
+            report.written += [files.final(p) for p in write_outputs(report, files.dir)]
+    report.seconds = time.perf_counter() - t0
+    return report
+
+
+def _screen_sites(scenario, specs, *, members, years, seed, out, workers, scheduler,
+                  resume, full, progress, log) -> ScreenReport:
+    """Run the sites (writing each site's cache file under ``out/sites``); no outputs."""
     stems = site_file_stems([s.name for s in specs])
     tasks = []
     for spec in specs:
+        if spec.error is not None:  # a bad row of the site table fails alone
+            continue
         sc = site_scenario(scenario, spec)
         w_seed, c_seed = site_seeds(seed, spec.name)
         tasks.append(SiteTask(site=spec, scenario=sc, members=members, n_years=int(years),
@@ -223,11 +251,13 @@ def screen(scenario: Scenario, sites, *, members: int | None = None,
             todo.append(task)
 
     results: dict[str, xr.Dataset] = {}
-    errors: dict[str, str] = {}
+    errors: dict[str, str] = {s.name: s.error for s in specs if s.error is not None}
     task_seconds: dict[str, float] = {}
     bar = _bar(progress, len(tasks), len(skipped))
     say = log or (bar.write if bar is not None else
                   (lambda msg: print(msg, file=sys.stderr)))
+    for name, error in errors.items():
+        say(f"site {name!r} failed: {error}")
 
     def collect(outcome: SiteOutcome):
         task_seconds[outcome.name] = outcome.seconds
@@ -265,13 +295,9 @@ def screen(scenario: Scenario, sites, *, members: int | None = None,
         [{"site": s.name, "source": s.source, "declared_in": s.origin,
           "error": errors[s.name]} for s in specs if s.name in errors],
         columns=["site", "source", "declared_in", "error"])
-    report = ScreenReport(dataset=combined, ranking=ranking, failures=failures,
-                          computed=[t.site.name for t in todo], skipped=skipped,
-                          task_seconds=task_seconds)
-    if out is not None:
-        report.written += write_outputs(report, out)
-    report.seconds = time.perf_counter() - t0
-    return report
+    return ScreenReport(dataset=combined, ranking=ranking, failures=failures,
+                        computed=[t.site.name for t in todo], skipped=skipped,
+                        task_seconds=task_seconds)
 
 
 def _check_int(value, name, low, high):
@@ -312,6 +338,10 @@ def add_screen_parser(subparsers):
     s.add_argument("--out", default=None, metavar="DIR",
                    help="output folder (default: out/<scenario name>-screen)")
     s.add_argument("--no-progress", action="store_true", help="no progress bar")
+    s.add_argument("--strict", action="store_true",
+                   help="a site whose coordinates disagree with its weather file's header "
+                   "or whose data peak away from the computed solar noon fails (default: "
+                   "it runs with a warning in the ranking's site_check column)")
     return s
 
 
@@ -325,7 +355,7 @@ def cmd_screen(args) -> int:
     report = screen(scenario, args.sites, members=args.members, years=args.years,
                     seed=args.seed, out=out, workers=args.workers,
                     scheduler=args.scheduler, resume=args.resume, full=args.full,
-                    progress=not args.no_progress)
+                    progress=not args.no_progress, strict=args.strict)
     where = f"dask scheduler {args.scheduler}" if args.scheduler else (
         "serial" if args.workers == 1 else
         f"{args.workers or os.cpu_count()} local processes")
@@ -342,6 +372,9 @@ def cmd_screen(args) -> int:
         print(view.to_string(index=False, float_format=lambda v: f"{v:,.2f}"))
     for _, r in report.failures.iterrows():
         print(f"FAILED {r['site']}: {r['error']}")
+    for _, r in report.ranking.iterrows():
+        if str(r["site_check"]).startswith("FAILED"):
+            print(f"WARNING {r['site']}: site check {r['site_check']}")
     print("\nP90 = annual yield exceeded in 90 % of weather years x crash replicates.")
     if report.dataset is not None and (report.dataset["weather_notes"].str.contains(
             "clear-sky mode")).any():

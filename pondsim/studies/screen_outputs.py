@@ -68,7 +68,8 @@ def _version() -> str:
 
 RANKING_COLUMNS = ["rank", "site", "latitude", "longitude", "best_plan",
                    "yield_p50_t_ha_yr", "yield_p90_t_ha_yr", "crash_risk_per_yr",
-                   "evaporation_m3_per_t", "insolation_kwh_m2_yr", "status", "error"]
+                   "evaporation_m3_per_t", "insolation_kwh_m2_yr", "status", "error",
+                   "site_check"]
 
 
 def ranking_table(ds: xr.Dataset | None, names: Sequence[str],
@@ -78,7 +79,8 @@ def ranking_table(ds: xr.Dataset | None, names: Sequence[str],
     Columns: rank, site, latitude, longitude, best_plan, ``yield_p50_t_ha_yr``,
     ``yield_p90_t_ha_yr`` (exceedance P90), ``crash_risk_per_yr`` (expected crashes per
     year of the best plan), ``evaporation_m3_per_t`` (of the best plan),
-    ``insolation_kwh_m2_yr``, status (``ok`` or ``failed``) and error.
+    ``insolation_kwh_m2_yr``, status (``ok`` or ``failed``), error and ``site_check``
+    (:mod:`pondsim.forcing.sitecheck`: ``passed: ...`` or ``FAILED: ...``).
     """
     errors = errors or {}
     rows = []
@@ -96,7 +98,8 @@ def ranking_table(ds: xr.Dataset | None, names: Sequence[str],
                 "crash_risk_per_yr": float(s["crash_rate"].values[best]),
                 "evaporation_m3_per_t": float(s["evaporation_per_biomass"].values[best]),
                 "insolation_kwh_m2_yr": float(s["insolation"]),
-                "status": "ok", "error": ""})
+                "status": "ok", "error": "",
+                "site_check": str(s["site_check"].values) if "site_check" in s else ""})
     table = pd.DataFrame(rows, columns=RANKING_COLUMNS[1:])
     table = table.sort_values("yield_p50_t_ha_yr", ascending=False, kind="stable")
     table.insert(0, "rank", np.arange(1, len(table) + 1))
@@ -115,11 +118,8 @@ def write_outputs(report: ScreenReport, out: Path) -> list[Path]:
     if report.dataset is not None:
         written.append(save(report.dataset, out / "screen.nc"))
     written.append(write_csv(report.ranking, out / "ranking.csv", index=False))
-    failures_path = out / "failures.csv"
-    if len(report.failures):
-        written.append(write_csv(report.failures, failures_path, index=False))
-    elif failures_path.exists():
-        failures_path.unlink()  # a resumed run that now succeeded everywhere
+    if len(report.failures):  # (a failures.csv of an earlier set goes with that set)
+        written.append(write_csv(report.failures, out / "failures.csv", index=False))
     if report.dataset is not None:
         written.append(screen_figure(report.ranking, out / "ranking.png"))
     return written

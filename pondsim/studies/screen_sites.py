@@ -71,6 +71,9 @@ class SiteSpec:
     weather_path: Path | None = None
     normals: dict | None = None  # key -> tuple of 12 floats
     origin: str = ""  # where the site was declared (file and row), for messages
+    #: Why the row cannot be screened (a bad value in the site table), or None. Such a
+    #: site fails alone: it is listed with this reason and the others run.
+    error: str | None = None
 
     @property
     def source(self) -> str:
@@ -80,11 +83,15 @@ class SiteSpec:
 def read_sites(path) -> list[SiteSpec]:
     """Sites from a folder of weather files or a site table (see the module docstring).
 
+    A bad row of a site table (a value out of range, a duplicate name, neither normals
+    nor a weather file) does not stop the others: its :class:`SiteSpec` carries the
+    reason in ``error`` and :func:`pondsim.studies.screen.screen` lists it as failed.
+
     Raises
     ------
     InputError
-        Missing path, empty folder, duplicate names, a bad column or value (naming the
-        row), a row with neither normals nor a weather file.
+        Missing path, empty folder, duplicate file stems, an unreadable table, an unknown
+        column or a missing ``name`` column.
     """
     path = Path(path)
     if path.is_dir():
@@ -136,11 +143,18 @@ def _sites_from_table(path: Path) -> list[SiteSpec]:
         raise InputError("the site table has no rows", path=path, field="--sites")
     sites, names = [], set()
     for i, row in enumerate(table.to_dict("records"), start=1):
-        sites.append(_site_from_row(row, i, path))
-        if sites[-1].name in names:
-            raise InputError(f"site name {sites[-1].name!r} is used twice; names must be "
-                             "unique", path=path, field=f"row {i}: name")
-        names.add(sites[-1].name)
+        name = str(row.get("name", "")).strip() or f"row {i}"
+        try:
+            site = _site_from_row(row, i, path)
+            if site.name in names:
+                raise InputError(f"site name {site.name!r} is used twice; names must be "
+                                 "unique", path=path, field=f"row {i}: name")
+        except InputError as err:  # this row fails alone; the other sites still run
+            if name in names:
+                name = f"{name} (row {i})"
+            site = SiteSpec(name=name, origin=f"{path}, row {i}", error=str(err))
+        sites.append(site)
+        names.add(site.name)
     return sites
 
 

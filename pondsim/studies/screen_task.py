@@ -80,6 +80,7 @@ def _simulate_site(task: SiteTask) -> xr.Dataset:
         notes.append("every day of a month alike (clear-sky mode): the P50-P90 spread "
                      "reflects crash draws only, not weather risk")
     out = reduce_site(ds, name=task.site.name, source=task.site.source, notes=notes)
+    out["site_check"] = (("site",), [str(meta.get("site_check", "not run"))])
     if task.full:
         out = xr.merge([out, ds.expand_dims(site=[task.site.name])],
                        combine_attrs="override")
