@@ -246,8 +246,8 @@ def _move_into_place(commit_dir: Path, folder: Path) -> None:
     if new is None:  # the manifest was already moved: only leftovers remain
         shutil.rmtree(commit_dir, ignore_errors=True)
         return
-    (folder / MANIFEST_NAME).unlink(missing_ok=True)  # the old set stops being a set
     old = _read_manifest(folder) or {}
+    (folder / MANIFEST_NAME).unlink(missing_ok=True)  # the old set stops being a set
     for name in set(old.get("files", {})) - set(new["files"]) - {MANIFEST_NAME}:
         (folder / name).unlink(missing_ok=True)
     for name in new["files"]:
