@@ -284,8 +284,14 @@ def _forcing_for(args):
 def cmd_weather(args) -> int:
     from pondsim.glossary import CAUTION
     from pondsim.pond import light, thermal
+    from pondsim.results.files import OutputError, check_output_folder
     from pondsim.results.tables import monthly_forcing_table
 
+    if args.plot:  # checked before reading the weather
+        if Path(args.plot).is_dir():
+            raise OutputError("--plot names a folder; give a file name such as "
+                              "weather.png", path=args.plot, field="--plot")
+        check_output_folder(Path(args.plot).parent)
     forcing, meta, pond, scenario = _forcing_for(args)
     lt = scenario.light if scenario else None
     par = light.par_at_surface(forcing, par_fraction=lt.par_fraction if lt else None,
@@ -302,7 +308,8 @@ def cmd_weather(args) -> int:
           f"  pond depth {pond.depth_m:g} m, farm {pond.farm_area_m2:,.0f} m2")
     print_site_check(meta)
     for note in meta.get("notes", []):
-        print(f"  note: {note}")
+        if not note.startswith("site check"):  # printed just above
+            print(f"  note: {note}")
     print()
     print(table.to_string(float_format=lambda v: f"{v:,.1f}"))
     frozen_days = int(water["frozen"].groupby(water.index.date).any().sum())
