@@ -69,8 +69,10 @@ def test_csv_outputs_are_plain_tables_and_the_caution_is_in_the_readme(tmp_path)
     # the reader used by the report takes both the plain and the older commented form
     old = tmp_path / "old.csv"
     old.write_text("# Results are estimates, not guarantees\n" + path.read_text())
-    pd.testing.assert_frame_equal(F.read_csv_table(old, index_col=0), table)
-    pd.testing.assert_frame_equal(F.read_csv_table(path, index_col=0), table)
+    from pondsim.report.build import read_table
+
+    pd.testing.assert_frame_equal(read_table(old, index_col="policy"), table)
+    pd.testing.assert_frame_equal(read_table(path, index_col="policy"), table)
 
 
 # ------------------------------------------------------------- folders checked first

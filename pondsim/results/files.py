@@ -164,14 +164,6 @@ def write_csv(table: pd.DataFrame, path: str | Path, *, index: bool = True) -> P
     return atomic_write(Path(path), write)
 
 
-def read_csv_table(path, **kwargs) -> pd.DataFrame:
-    """Read a table written by :func:`write_csv`, also one from an older pondsim that
-    started with a ``# caution`` comment line."""
-    with open(path, encoding="utf-8") as fh:
-        skip = 1 if fh.readline().startswith("#") else 0
-    return pd.read_csv(path, skiprows=skip, **kwargs)
-
-
 # ------------------------------------------------------------------------ output sets
 def check_output_folder(folder) -> Path:
     """Check that ``folder`` can hold outputs, creating it; raises :class:`OutputError`.
