@@ -62,12 +62,16 @@ STUDIES = {
     "tune": ["tune", "{scenario}", "--out", "{out}/tune"],
 }
 
-_CHILD = ("import resource, sys, time\n"
+# Peak RSS from /proc/self/status VmHWM [kB]: getrusage's ru_maxrss survives exec, so a
+# child started by a big parent would report the parent's peak.
+_CHILD = ("import sys, time\n"
           "t = time.perf_counter()\n"
           "from pondsim.cli import main\n"
           "code = main(sys.argv[1:])\n"
-          "print(f'@@ {time.perf_counter() - t:.3f} "
-          "{resource.getrusage(resource.RUSAGE_SELF).ru_maxrss}', file=sys.stderr)\n"
+          "hwm = [int(line.split()[1]) for line in open('/proc/self/status') "
+          "if line.startswith('VmHWM:')]\n"
+          "print(f'@@ {time.perf_counter() - t:.3f} {hwm[0] if hwm else -1024}', "
+          "file=sys.stderr)\n"
           "raise SystemExit(code)\n")
 
 
