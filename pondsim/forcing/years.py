@@ -44,6 +44,13 @@ import numpy as np
 import pandas as pd
 
 from pondsim.errors import InputError
+from pondsim.forcing.persistence import (
+    apply_shift,
+    autoregressive_shift,
+    fit_seasonal_cycle,
+    persistence_model,
+    temperature_anomaly,
+)
 from pondsim.forcing.sourcedays import (
     _balance_weights,
     _candidates,
@@ -294,10 +301,29 @@ def _blend_temperature(temp, rh, lib_temp_prev_last, hours):
     return np.where(touched, new_t, temp), np.where(touched, new_rh, rh)
 
 
+def _persistence_shift(lib, ci, cls_src, n_classes, src, cls, order, counts, base_w):
+    """Daily temperature shift [K] giving the synthetic years the source's lag-1
+    autocorrelation of daily mean temperature anomalies (:mod:`pondsim.forcing.
+    persistence`), shape of ``src``."""
+    t_mean = lib.values[ci["temp_air"]].mean(axis=-1)
+    doy = np.asarray(lib.start.day_of_year)
+    coef = fit_seasonal_cycle(t_mean, doy)
+    anomaly = temperature_anomaly(t_mean, doy, coef)
+    consecutive = np.arange(len(lib.prev)) - lib.prev == 1
+    _, residual, phi, _ = persistence_model(anomaly, lib.month, cls_src, consecutive,
+                                            n_classes)
+    # expected residual of a draw from each (target day, class) pool
+    valid = np.arange(order.shape[2])[None, None, :] < counts[:, :, None]
+    w = np.where(valid, base_w[order], 0.0)
+    pool_mean = (w * residual[order]).sum(axis=2) / w.sum(axis=2)       # (n_t, C)
+    expected = pool_mean[np.arange(cls.shape[1])[None, :], cls]          # (N, n_t)
+    return autoregressive_shift(residual[src], expected, phi)
+
+
 def stack_years(forcing, n_years: int, *, seed: int, n_classes: int = 3, year=None,
                 window_days: int = WINDOW_DAYS, blend_hours: int = BLEND_HOURS,
-                prior_count: float = PRIOR_COUNT, site: Mapping | None = None
-                ) -> SyntheticYears:
+                prior_count: float = PRIOR_COUNT, site: Mapping | None = None,
+                persistence: bool = True) -> SyntheticYears:
     """Synthetic weather years as arrays ``(n_years, n_hours)`` per column.
 
     Parameters
@@ -328,6 +354,10 @@ def stack_years(forcing, n_years: int, *, seed: int, n_classes: int = 3, year=No
         ``latitude``, ``longitude``, ``elevation_m`` (e.g. read_weather's meta): recompute
         ``solar_zenith`` and ``ghi_clear`` for the target year instead of taking them from
         the source's same calendar day.
+    persistence : bool
+        Give daily mean air temperature the source's day-to-day persistence
+        (:mod:`pondsim.forcing.persistence`); False keeps every copied day's temperature
+        as it is (up to blending).
 
     Returns
     -------
@@ -425,8 +455,14 @@ def stack_years(forcing, n_years: int, *, seed: int, n_classes: int = 3, year=No
         if c in IRRADIANCE_COLUMNS:
             v = v * scale[:, :, None]
         data[c] = v
+    shift = np.zeros(src.shape)
+    if persistence:
+        shift = _persistence_shift(lib, ci, cls_src, n_classes, src, cls, order,
+                                   counts, base_w)
+        data = apply_shift(data, shift, saturation_vapour_pressure)
     if int(blend_hours) > 0 and "relative_humidity" in data:
-        t_prev_last = lib.values[ci["temp_air"]][lib.prev[src], -1]
+        # the copied day's own yesterday, moved by today's shift
+        t_prev_last = lib.values[ci["temp_air"]][lib.prev[src], -1] + shift
         data["temp_air"], data["relative_humidity"] = _blend_temperature(
             data["temp_air"], data["relative_humidity"], t_prev_last, int(blend_hours))
     shape = (n_years, len(index))
