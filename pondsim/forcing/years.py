@@ -399,10 +399,16 @@ def stack_years(forcing, n_years: int, *, seed: int, n_classes: int = 3, year=No
 
     Each synthetic year is drawn independently (no carry-over from the previous year).
 
-    Limits, measured on the Greensboro TMY3 (200 years): the lag-1 autocorrelation of
-    daily clearness is 0.22 against the source's 0.29 (within-class draws are
-    independent); that of daily mean air temperature only 0.17 against 0.69, since
-    warm and cold spells persist only through their link with the clearness classes.
+    7. With ``persistence`` (default), each day's temperature is shifted so that daily
+       mean anomalies follow a first-order autoregressive residual around the class
+       mean (:mod:`pondsim.forcing.persistence`), RH at constant vapour pressure.
+
+    Measured on the Greensboro TMY3 (200 years): the lag-1 autocorrelation of daily
+    clearness is 0.22 against the source's 0.29 (within-class draws are independent);
+    that of daily mean temperature anomalies 0.64 against 0.67 (0.19 without step 7),
+    Miami TMY2 0.64 against 0.63; mean cold-spell length (coldest fifth of days)
+    2.2 +- 0.3 d per year against the source's 2.8 d (1.5 d without step 7); the
+    June-August correlation of clearness and temperature 0.38 (source 0.38).
     Memory: 8 bytes x 8760 h per column per year (~0.6 GB for 1000 years of 9 columns
     while building).
     """
