@@ -166,8 +166,9 @@ SCHEMA: dict[str, dict[str, Key]] = {
                                       open_low=True),
     },
     "run": {
-        "members": Key("int", 1, "Stochastic members (crash draws) per policy.", "", 1,
-                       1000000),
+        "members": Key("int", 1, "Crash replicates per driver set (weather year x "
+                       "parameter draw) and policy; the same meaning as --members of every "
+                       "command.", "", 1, 1000000),
         "seed": Key("int", 12345, "Seed of the random streams (same seed, same result).",
                     "", 0, 2**63 - 1),
         "progress": Key("bool", True, "Show progress bars on long runs."),
@@ -204,10 +205,11 @@ PLAN_KEYS: dict[str, Key] = {
 }
 
 UNCERTAINTY_KEYS: dict[str, Key] = {
-    "weather_years": Key("int", 20, "Synthetic weather years for outlook and tuning studies.",
-                         "", 1, 10000),
-    "draws": Key("int", 16, "Parameter draws (Latin hypercube) for outlook studies.", "",
-                 1, 10000),
+    "weather_years": Key("int", 20, "Synthetic weather years for tuning studies and the "
+                         "first round of an outlook (a file of real years uses all of "
+                         "them).", "", 1, 10000),
+    "draws": Key("int", 16, "Parameter draws (Latin hypercube) per weather year for outlook "
+                 "studies; every weather year has its own draws.", "", 1, 10000),
     "sobol_samples": Key("int", 64, "Base samples for Sobol sensitivity indices (a power "
                          "of two; cost = samples x (parameters + 2) runs).", "", 8, 8192),
     "p90_target_pct": Key("float", 5.0, "Outlook convergence target: the ensemble grows "
