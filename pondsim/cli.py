@@ -433,9 +433,11 @@ def cmd_outlook(args) -> int:
           f"0.9. Farm = sum over {scenario.pond.count} pond(s) sharing each weather year "
           f"and draw, each with its own crashes (correlation "
           f"{unc.farm_crash_correlation:g}).")
-    lines = headline(annual, best) + headline(annual, best, farm=True)
     status = _convergence_text(ds)
-    print(f"lead policy '{best}': " + "; ".join(lines) + (f" \u2014 {status}" if status else ""))
+    print(f"lead policy '{best}'" + (f": {status}" if status else ""))
+    print("  per hectare: " + "; ".join(headline(annual, best)))
+    print(f"  farm of {scenario.pond.count} pond(s): "
+          + "; ".join(headline(annual, best, farm=True)))
     if sens is not None:
         print("\nSobol indices of annual yield (first order, total; 95 % bootstrap interval):")
         for name, s in sens.iterrows():

@@ -283,12 +283,15 @@ def outlook_figures(ds, bands, sens, out_dir, annual_table=None) -> list[Path]:
     for q in (50, 75, 90):
         ax.axvline(q, color="0.5", lw=0.8, linestyle=":")
         ax.text(q, ax.get_ylim()[1], f" P{q}", va="top", fontsize=8, color="0.3")
-    ax.set_xlabel("probability of exceedance [%] (share of members with at least this "
-                  "yield; P90 = exceeded with probability 0.9)"
-                  + ("; marks: P50 and P90 with 95 % CI" if annual_table is not None else ""))
+    ax.set_xlabel("probability of exceedance [%] (P90: exceeded with probability 0.9)")
+    if annual_table is not None:
+        ax.errorbar([], [], yerr=[], fmt="o", ms=4, capsize=4, color="0.3",
+                    label="P50, P90 with 95 % CI")
     ax.set_ylabel("annual biomass yield [t ha$^{-1}$ yr$^{-1}$ AFDW]")
+    per_year = " each" if ds.attrs.get("draws_nested") else ""
     ax.set_title(f"{ds.attrs['site']}: annual yield over {ds.attrs.get('weather_years', 1)} "
-                 f"weather years × {ds.attrs.get('parameter_draws', 1)} parameter draws")
+                 f"weather years × {ds.attrs.get('parameter_draws', 1)} parameter "
+                 f"draws{per_year} × {ds.attrs.get('replicates', 1)} crash replicates")
     ax.grid(alpha=0.3)
     ax.legend(fontsize=8)
     written.append(_save(fig, out_dir / "exceedance.png"))
