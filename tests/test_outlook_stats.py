@@ -248,3 +248,27 @@ def test_default_outlook_p90_agrees_across_seeds(demo):
     centre = np.mean(p90)
     assert all(lo <= centre <= hi for lo, hi in zip(lows, highs, strict=True)), (
         p90, lows, highs)
+
+
+@pytest.mark.parametrize("axis, shape", [("weather_year", (1, 4, 2, 2)),
+                                         ("draw", (1, 2, 4, 2)),
+                                         ("replicate", (1, 2, 2, 4))])
+def test_rounds_merge_along_the_growing_level(axis, shape):
+    """Synthetic rounds add years; rounds on real years add draws per year, or crash
+    replicates when no parameter is uncertain: the merged ensemble stays a full nest."""
+    from pondsim.studies.outlook import _merge_rounds
+
+    def part(offset):
+        values = offset + np.arange(8.0)[None, :]
+        ds = _fake_ds(values, reps=2)
+        member = np.arange(8)
+        ds = ds.assign_coords(weather_year=("member", member // 4),
+                              draw=("member", (member // 2) % 2))
+        ds.attrs.update(weather_years=2, parameter_draws=2, replicates=2)
+        return ds
+
+    merged = _merge_rounds([part(0.0), part(100.0)], axis)
+    cube = member_cube(merged["harvested"].sum("day").values * 0.01, merged)
+    assert cube.shape == shape
+    assert sorted(cube.ravel()) == pytest.approx(sorted(np.r_[np.arange(8.0),
+                                                              100 + np.arange(8.0)]))

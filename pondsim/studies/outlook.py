@@ -299,24 +299,24 @@ def _with_member_dim(ds: xr.Dataset) -> xr.Dataset:
     return out
 
 
-def _merge_rounds(parts, real: bool) -> xr.Dataset:
-    """Concatenate rounds along ``member``: new synthetic years are numbered on; with
-    real years each round adds draws to the same years (draws numbered on)."""
+def _merge_rounds(parts, axis: str) -> xr.Dataset:
+    """Concatenate rounds along ``member``, numbering on along ``axis``: new synthetic
+    ``weather_year``s; new ``draw``s in the same real years; or, with real years and no
+    uncertain parameter, new crash ``replicate``s."""
     if len(parts) == 1:
         return parts[0]
-    pieces, year0, draw0 = [], 0, 0
+    pieces, offset = [], {"weather_year": 0, "draw": 0, "replicate": 0}
+    sizes = {"weather_year": "weather_years", "draw": "parameter_draws",
+             "replicate": "replicates"}
     for ds in parts:
         d = _with_member_dim(ds)
-        d = d.assign_coords(weather_year=d["weather_year"] + (0 if real else year0),
-                            draw=d["draw"] + (draw0 if real else 0))
-        year0 += int(ds.attrs["weather_years"])
-        draw0 += int(ds.attrs["parameter_draws"])
+        d = d.assign_coords({axis: d[axis] + offset[axis]})
+        offset[axis] += int(ds.attrs[sizes[axis]])
         pieces.append(d)
     ds = xr.concat(pieces, dim="member", data_vars="all", coords="different",
                    compat="equals", join="exact", combine_attrs="override")
     ds = ds.assign_coords(member=np.arange(ds.sizes["member"]))
-    ds.attrs["weather_years"] = int(parts[0].attrs["weather_years"]) if real else year0
-    ds.attrs["parameter_draws"] = draw0 if real else int(parts[0].attrs["parameter_draws"])
+    ds.attrs[sizes[axis]] = offset[axis]
     return ds
 
 
@@ -343,7 +343,8 @@ def run_outlook(scenario, *, n_years: int, n_draws: int | None = None, members: 
         to within ``target_pct`` % of its P50 (95 % interval half-width), or until the
         next round would pass ``max_members`` members per policy. Each round doubles the
         ensemble: new synthetic years (as many as so far) with their own draws, or, with
-        real years, as many new draws per year as so far. Every weather year has its
+        real years, as many new draws per year as so far (new crash replicates when no
+        parameter is uncertain). Every weather year has its
         own ``n_draws`` parameter draws (nested), so distinct draws grow with the years.
     target_pct : float, optional [%]
         Default ``uncertainty.p90_target_pct``.
@@ -373,16 +374,17 @@ def run_outlook(scenario, *, n_years: int, n_draws: int | None = None, members: 
         meta0["notes"] = list(meta0.get("notes", [])) + [
             f"{len(real)} real weather years used as they are"]
         real_pair = (real, meta0)
+    axis = ("weather_year" if real is None else "draw" if unc.parameters else "replicate")
     seeds = np.random.SeedSequence(seed).generate_state(64, dtype=np.uint32)
     parts, rounds, meta = [], [], {}
-    size_y = n_years
+    size_y, size_d, size_r = n_years, n_draws, members
     for k in range(64):
         # round 1 keeps the given seed, so a single round is the plain ensemble
         sub = seed if k == 0 else int(seeds[k])
-        ds_k, meta = _round(scenario, n_years=size_y, n_draws=n_draws, members=members,
+        ds_k, meta = _round(scenario, n_years=size_y, n_draws=size_d, members=size_r,
                             seed=sub, progress=progress, real=real_pair)
         parts.append(ds_k)
-        ds = _merge_rounds(parts, real is not None)
+        ds = _merge_rounds(parts, axis)
         if not converge:
             return ds, meta
         table = annual_table(ds, seed=seed)
@@ -402,14 +404,18 @@ def run_outlook(scenario, *, n_years: int, n_draws: int | None = None, members: 
                        "p90_half_width_pct": half_pct, "p90_target_pct": target})
         if report is not None:
             report(f"  round {k + 1}: {n_mem} members per policy "
-                   f"({r['weather_years']:.0f} weather years x {n_draws} draws each x "
-                   f"{members} crash replicates); P90 of {lead!r} 95 % CI half-width "
+                   f"({r['weather_years']:.0f} weather years x "
+                   f"{r['parameter_draws'] / r['weather_years']:.0f} draws each x "
+                   f"{r['replicates']:.0f} crash replicates); P90 of {lead!r} 95 % CI "
+                   "half-width "
                    f"{half_pct:.1f} % of P50 (target {target:g} %)")
         # next round doubles the ensemble: as many new synthetic years (each with its
-        # own draws) as so far, or, with real years, as many new draws per year
+        # own draws) as so far, or, with real years, as many new draws per year (or new
+        # crash replicates when no parameter is uncertain)
         size_y = int(ds.attrs["weather_years"])
-        grows = real is None or bool(unc.parameters)
-        if done or not grows or 2 * n_mem > cap:
+        size_d = int(ds.attrs["parameter_draws"]) if axis == "draw" else n_draws
+        size_r = int(ds.attrs["replicates"]) if axis == "replicate" else members
+        if done or 2 * n_mem > cap:
             break
     ds.attrs.update({"converged": int(done), "p90_half_width_pct": float(half_pct),
                      "p90_target_pct": target, "rounds": len(rounds)})
