@@ -56,6 +56,7 @@ from pondsim.report.sections import (
     _reproduce,
     _sensitivity,
 )
+from pondsim.report.summary import summary_section
 from pondsim.results.files import atomic_write
 
 
@@ -77,6 +78,7 @@ def build_page(out_dir, scenario, manifest: dict, *, run_date: str | None = None
         if (out / "sensitivity.csv").is_file() and manifest["options"]["sensitivity"] \
         else None
     parts = [
+        summary_section(out, scenario, manifest),
         _question(scenario, manifest, drivers),
         _headline(out, scenario, manifest, annual, summary, best),
         _monthly(out, manifest, drivers, bands),
@@ -95,10 +97,11 @@ def build_page(out_dir, scenario, manifest: dict, *, run_date: str | None = None
         _p(f"{scenario.site.name} · {scenario.year} · strain {scenario.strain.name} · "
            f"pondsim {manifest['pondsim_version']}", "meta"),
         _p("Estimates from a model, not guarantees: read the limitations and cautions in "
-           "the last section before using any number.", "meta"),
-        _reproduce(manifest, run_date)])
-    footer = (_p(f"End of report. Files of the study: {', '.join(sorted(manifest['files']))}.",
-                 "end-text") + '\n<hr class="end">')
+           "the last section before using any number.", "meta")])
+    files = ", ".join(sorted(manifest["files"]))
+    footer = (_reproduce(manifest, run_date) + "\n"
+              + _p(f"End of report. Files of the study: {files}.", "end-text")
+              + '\n<hr class="end">')
     return ("<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n"
             '<meta name="viewport" content="width=device-width, initial-scale=1">\n'
             f"<title>{esc(title)}</title>\n<style>{CSS}</style>\n</head>\n<body>\n"

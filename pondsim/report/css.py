@@ -38,10 +38,22 @@ table.fixed td { overflow-wrap: anywhere; }
 td.unit, td.nowrap { white-space: nowrap; }
 .end-text { margin-top: 2rem; font-size: .88rem; }
 hr.end { border: 0; border-top: 6px solid #000; margin: .3rem 0 0; }
+.lede { margin: .35rem 0; }
+dl.facts { margin: .3rem 0; }
+dl.facts dt { font-weight: 700; float: left; clear: left; margin-right: .4rem; }
+dl.facts dd { margin: 0 0 .2rem 0; }
+#summary h2 { margin-top: 1.2rem; }
+#summary table { margin: .3rem 0 .5rem; }
+#summary .caution { margin: .5rem 0; padding: .3rem .7rem; }
+#summary ul, #summary ol { margin: .2rem 0; }
 @page { size: A4; margin: 15mm 13mm; }
 @media print {
   body { max-width: none; padding: 0; font-size: 10pt; }
   section.major { break-before: page; }
+  section#summary { break-after: page; font-size: 9.5pt; }
+  #summary table { font-size: 8.5pt; }
+  #summary h2 { margin-top: .4rem; }
+  header h1 { font-size: 16pt; }
   h2, h3, caption { break-after: avoid; }
   tr, figure, .card { break-inside: avoid; }
   th { background: #fff; }

@@ -12,6 +12,7 @@ import pandas as pd
 
 #: The page's sections in order: (id, heading). Each is one <section> with one <h2>.
 SECTIONS = (
+    ("summary", "Summary"),
     ("question", "The question and the site"),
     ("headline", "Headline numbers"),
     ("monthly", "The monthly picture"),
@@ -109,6 +110,11 @@ UNIT_TEXT = {"g m-2 d-1": "g m⁻² d⁻¹", "g m-3": "g m⁻³", "m2": "m²", "
 
 def _unit(u: str) -> str:
     return UNIT_TEXT.get(u, u)
+
+
+def section_number(sid: str) -> int:
+    """The printed number of the section with id *sid* (1-based)."""
+    return [s for s, _ in SECTIONS].index(sid) + 1
 
 
 def _section(index: int, body: list[str]) -> str:

@@ -10,7 +10,6 @@ import math
 from pathlib import Path
 
 import numpy as np
-import pandas as pd
 
 from pondsim.report.assemble import _single_k_view, assumption_table, crash_months, monthly_drivers
 from pondsim.report.manifest import MANIFEST, MANIFEST_FORMAT, _expected_files, _file_sha256
@@ -20,51 +19,13 @@ from pondsim.results.files import atomic_write
 # Running the study
 # ---------------------------------------------------------------------------------------
 
-def _monthly_drivers_figure(drivers: pd.DataFrame, strain, path) -> Path:
-    """Monthly PAR, water temperature and K with their P10-P90 bands over the ensemble."""
-    import matplotlib.pyplot as plt
-
-    from pondsim.results.figures import COLORS, _save
-
-    months = drivers.index.to_numpy()
-    labels = [pd.Timestamp(2000, int(m), 1).strftime("%b") for m in months]
-    fig, axes = plt.subplots(3, 1, figsize=(10, 8.5), sharex=True, constrained_layout=True)
-    panels = (("par_mol_m2_d", "daily PAR entering the culture\n[mol m$^{-2}$ d$^{-1}$]",
-               "//"),
-              ("water_temperature_c", "water temperature,\nmonthly mean [°C]", ".."),
-              ("k_g_m3", "carrying capacity K,\nmonthly mean [g m$^{-3}$]", "\\\\"))
-    for i, (ax, (col, ylabel, hatch)) in enumerate(zip(axes, panels, strict=True)):
-        color = COLORS[i]
-        ax.fill_between(months, drivers[f"{col}_p10"], drivers[f"{col}_p90"],
-                        color=color, alpha=0.2, hatch=hatch, lw=0.0,
-                        label="P10–P90 over weather years and draws")
-        for q in ("p10", "p90"):
-            ax.plot(months, drivers[f"{col}_{q}"], color=color, lw=0.8, linestyle=":")
-        ax.plot(months, drivers[f"{col}_p50"], color=color, marker="o", ms=4, lw=1.6,
-                label="median (P50)")
-        ax.set_ylabel(ylabel)
-        ax.grid(alpha=0.3)
-        ax.legend(fontsize=8, loc="upper left")
-    ax = axes[1]
-    for value, style, name in ((strain.t_opt_c, "--", "strain optimum"),
-                               (strain.t_max_c, "-.", "strain maximum")):
-        ax.axhline(value, color="k", lw=0.9, linestyle=style)
-        ax.annotate(f"{name} {value:g} °C", (1.0, value), xycoords=("axes fraction", "data"),
-                    xytext=(-4, 3), textcoords="offset points", ha="right", va="bottom",
-                    fontsize=8)
-    ax.set_ylim(top=max(strain.t_max_c + 3, ax.get_ylim()[1]))
-    axes[0].set_title("What drives growth, month by month")
-    axes[-1].set_xticks(months, labels)
-    axes[-1].set_xlabel("month")
-    return _save(fig, path)
-
-
 def run_study(scenario, out_dir, fingerprint: dict) -> dict:
     """Run the study, write every table, the netCDF results and the figures into
     *out_dir*, and return the manifest (written last)."""
     from pondsim.operations.crash import CrashModel
     from pondsim.operations.simulate import crash_model_of
-    from pondsim.results.figures import compare_figures, outlook_figures
+    from pondsim.results.figstyle import context_of, source_of
+    from pondsim.results.figures import compare_figures, drivers_figure, outlook_figures
     from pondsim.results.files import save, write_csv
     from pondsim.results.tables import policy_summary
     from pondsim.studies.compare import best_by_season, risk_calendar, season_table
@@ -113,9 +74,10 @@ def run_study(scenario, out_dir, fingerprint: dict) -> dict:
     write_csv(assumptions, out / "assumptions.csv", index=False)
     if sens is not None:
         write_csv(sens, out / "sensitivity.csv")
-    outlook_figures(ds, bands, sens, out)
+    outlook_figures(ds, bands, sens, out, policy=lead)
     compare_figures(view, seasons, crash, out)
-    _monthly_drivers_figure(drivers, scenario.strain, out / "monthly_drivers.png")
+    drivers_figure(drivers, scenario.strain, out / "monthly_drivers.png",
+                   context=context_of(ds), source=source_of(ds))
 
     names = _expected_files(opt)
     manifest = {
@@ -128,7 +90,9 @@ def run_study(scenario, out_dir, fingerprint: dict) -> dict:
         "ensemble": {"weather_years": int(ds.attrs.get("weather_years", 1)),
                      "parameter_draws": int(ds.attrs.get("parameter_draws", 1)),
                      "replicates": int(ds.attrs.get("replicates", 1)),
-                     "members": int(ds.sizes["member"]), "days": int(ds.sizes["day"])},
+                     "members": int(ds.sizes["member"]), "days": int(ds.sizes["day"]),
+                     "converged": (None if ds.attrs.get("converged") is None
+                                   else bool(int(ds.attrs["converged"])))},
         "weather_notes": [str(n) for n in meta.get("notes", [])],
         "files": {name: _file_sha256(out / name) for name in names},
     }

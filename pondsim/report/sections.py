@@ -21,6 +21,7 @@ from pondsim.report.html import (
     _text_td,
     _unit,
     esc,
+    section_number,
 )
 
 
@@ -79,7 +80,7 @@ def _question(scenario, manifest: dict, drivers: pd.DataFrame) -> str:
     body.append(_p(f"Across the year the median month brings {par.min():.1f} to "
                    f"{par.max():.1f} mol m⁻² d⁻¹ of PAR into the culture, and the pond's "
                    f"monthly mean water temperature runs from {tw.min():.1f} to "
-                   f"{tw.max():.1f} °C (section 3)."))
+                   f"{tw.max():.1f} °C (section {section_number('monthly')})."))
     for note in manifest.get("weather_notes", []):
         body.append(_p(f"Weather note: {note}", "note"))
     return "\n".join(body)
