@@ -50,10 +50,13 @@ dl.facts dd { margin: 0 0 .2rem 0; }
 @media print {
   body { max-width: none; padding: 0; font-size: 10pt; }
   section.major { break-before: page; }
-  section#summary { break-after: page; font-size: 9.5pt; }
-  #summary table { font-size: 8.5pt; }
-  #summary h2 { margin-top: .4rem; }
-  header h1 { font-size: 16pt; }
+  section#summary { break-after: page; font-size: 9pt; line-height: 1.3; }
+  #summary table { font-size: 8pt; margin: 2pt 0 4pt; }
+  #summary h2 { margin: 4pt 0 4pt; font-size: 13pt; }
+  #summary p, #summary dl, #summary .caution { margin: 3pt 0; }
+  #summary li { margin: 0; }
+  header h1 { font-size: 15pt; margin: 0 0 2pt; }
+  header p { margin: 2pt 0; }
   h2, h3, caption { break-after: avoid; }
   tr, figure, .card { break-inside: avoid; }
   th { background: #fff; }

@@ -60,6 +60,9 @@ CAUTION_MARK = "pondsim estimates, not guarantees: defer to local codes, permits
 FOOTER_IN = 0.3
 FOOTER_PT = 7.0
 DPI = 110
+#: Characters of a 12 pt title line that fit one inch of figure width (DejaVu Sans
+#: averages about 0.6 em per character: 72 / (12 * 0.6) = 10; 9.5 leaves a margin).
+TITLE_CHARS_PER_INCH = 9.5
 MONTHS = [pd.Timestamp(2000, m, 1).strftime("%b") for m in range(1, 13)]
 
 
@@ -135,11 +138,24 @@ def new_figure(subject: str, context: str, *, nrows: int = 1, ncols: int = 1,
     root = plt.figure(figsize=size, layout="constrained")
     main, foot = root.subfigures(2, 1, height_ratios=[size[1] - FOOTER_IN, FOOTER_IN])
     axes = main.subplots(nrows, ncols, **kw)
-    main.suptitle(subject + ("\n" + context if context else ""), fontsize=12, gid="title")
+    width = int(size[0] * TITLE_CHARS_PER_INCH)
+    main.suptitle("\n".join([subject, *_wrap_parts(context, width)]), fontsize=12,
+                  gid="title")
     footer = CAUTION_MARK + (f" · weather: {source}" if source else "")
     foot.text(0.006, 0.5, footer, fontsize=FOOTER_PT, color="0.25", ha="left",
               va="center", gid="caution")
     return main, axes
+
+
+def _wrap_parts(text: str, width: int) -> list[str]:
+    """*text* in lines of at most *width* characters, broken at its " · " separators."""
+    lines: list[str] = []
+    for part in (text.split(" · ") if text else []):
+        if lines and len(lines[-1]) + 3 + len(part) <= width:
+            lines[-1] += " · " + part
+        else:
+            lines.append(part)
+    return lines
 
 
 def month_axis(ax, months=None, *, label: bool = True) -> None:
