@@ -138,7 +138,8 @@ def _headline(out: Path, scenario, manifest: dict, annual, summary, best) -> str
     body.append(_figure(out, "exceedance.png",
                         "Line chart of annual biomass yield in tonnes per hectare per year "
                         "against the probability of exceedance in percent, one line per "
-                        "policy, with the P50, P75 and P90 levels marked.",
+                        "policy, with each policy's P50 and P90 marked and their values in "
+                        "the legend.",
                         "Exceedance curves: the share of ensemble members whose annual "
                         "yield reaches at least the value on the vertical axis."))
     return "\n".join(body)
@@ -181,9 +182,9 @@ def _monthly(out: Path, manifest: dict, drivers, bands) -> str:
                     "Light, water temperature and carrying capacity by month (median and "
                     "P10–P90 over weather years and parameter draws)."),
             _figure(out, "monthly_bands.png",
-                    "Line chart of harvested productivity in grams per square metre per "
-                    "day by month, one line per policy (median) with a shaded P10 to P90 "
-                    "band.",
+                    "Small multiples, one panel per policy: harvested productivity in grams "
+                    "per square metre per day by month, the median line with a shaded P10 "
+                    "to P90 band, the other policies' medians in grey behind.",
                     "Yield by month: harvested productivity, P50 with the P10–P90 band "
                     "over ensemble members.")]
     return "\n".join(body)
