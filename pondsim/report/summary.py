@@ -152,10 +152,10 @@ def summary_section(out: Path, scenario, manifest: dict) -> str:
             f"give growing {esc(scenario.strain.name)} in {scenario.year}, which harvest "
             "rule should run in each season, how often will cultures crash and what will "
             "the ponds consume?</p>",
-            f'<p class="lede"><strong>Answer.</strong> Run {esc(lead)} (the rule with the '
-            "highest P50; or the seasonal plan below). Across "
-            f"{manifest['ensemble']['members']} members (weather years × parameter draws × "
-            "crash draws):</p>"]
+            f'<p class="lede"><strong>Answer.</strong> Of the rules and plans compared, '
+            f"{esc(lead)} gives the highest P50; the best rule season by season is in the "
+            f"plan below. Over {manifest['ensemble']['members']} members (weather years × "
+            "parameter draws × crash draws):</p>"]
     body += _answer(annual, manifest, farm_ha)
     body.append(_plan(best))
     facts = [("Crash risk", _crash_risk(annual, manifest, scenario)),
