@@ -447,3 +447,23 @@ def test_summary_answers_from_the_outputs(small_scenario, report_dir, page_text,
         body = summary_section(copy, load_scenario(small_scenario), manifest)
         assert "95 % interval 1.2 to 2.5" in body and "95 % interval 0.8 to 1.5" in body
         assert f"interval: {NOT_AVAILABLE}" not in body
+
+
+def test_summary_reads_a_priced_bill(small_scenario, report_dir, tmp_path):
+    """A bill with the priced columns (``total_cost_<currency>``, ``cost_per_t_<...>``)
+    gives the bill's headline cost; without them the summary says it is not priced."""
+    from pondsim.report.summary import NOT_AVAILABLE, summary_section
+
+    manifest = json.loads((report_dir / rep.MANIFEST).read_text(encoding="utf-8"))
+    scenario = load_scenario(small_scenario)
+    plain = summary_section(report_dir, scenario, manifest)
+    assert f"cost: {NOT_AVAILABLE} (not priced)" in plain
+    copy = tmp_path / "priced"
+    shutil.copytree(report_dir, copy)
+    lines = (copy / "inputs_bill.csv").read_text(encoding="utf-8").splitlines()
+    lines[1] += ",total_cost_EUR,cost_per_t_EUR"
+    lines[2:] = [row + ",12345.0,678.9" for row in lines[2:]]
+    (copy / "inputs_bill.csv").write_text("\n".join(lines) + "\n", encoding="utf-8")
+    priced = summary_section(copy, scenario, manifest)
+    assert "priced inputs 12,345 EUR per year, 679 EUR per tonne of product" in priced
+    assert "not priced" not in priced
