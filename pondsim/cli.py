@@ -348,9 +348,21 @@ def cmd_weather(args) -> int:
         print(f"; hours above the strain's t_max_c ({upper:g} degC): {hot}", end="")
     print("\n\n" + CAUTION)
     if args.plot:
+        from pondsim.results.figstyle import context_line
         from pondsim.results.figures import weather_figure
 
-        path = weather_figure(table, water, forcing, title, args.plot)
+        station = str(meta.get("name") or "").strip()
+        if scenario is not None:
+            context = context_line(scenario.site.name, scenario.study_name,
+                                   scenario.strain.name)
+            file = (Path(scenario.weather.path).name if scenario.weather.source == "file"
+                    else "clear-sky weather from monthly normals")
+        else:
+            file = Path(args.source).name
+            context = f"weather file {file}, pond depth {pond.depth_m:g} m"
+        source = f"{file} ({station})" if station and station != file else file
+        path = weather_figure(table, water, forcing, context, args.plot, par=par,
+                              source=source)
         print(f"\nfigure written: {path}")
     return 0
 
@@ -530,7 +542,8 @@ def cmd_outlook(args) -> int:
             written.append(write_csv(sens, out / "sensitivity.csv"))
         from pondsim.results.figures import outlook_figures
 
-        written += outlook_figures(ds, bands, sens, out, annual_table=annual)
+        written += outlook_figures(ds, bands, sens, out, policy=best,
+                                   annual_table=annual)
     r = annual.loc[best]
     print(f"\n{r['weather_years']:.0f} weather years x {n_draws} draws each "
           f"({r['parameter_draws']:.0f} distinct) x {members} crash replicate(s) = "

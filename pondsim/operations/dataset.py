@@ -4,6 +4,8 @@
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import numpy as np
 import pandas as pd
 import xarray as xr
@@ -123,7 +125,9 @@ def build_dataset(daily, drivers, hourly_sets, scenario, meta: dict, *,
                         "timezone": f"local standard time, UTC offset {offset} h"}
     ds.attrs = {
         "title": f"pondsim results: {scenario.study_name}",
-        "site": str(meta.get("name", scenario.site.name)),
+        "site": str(scenario.site.name),
+        "study": str(scenario.study_name),
+        "weather_source": _weather_source(scenario, meta),
         "latitude": float(meta.get("latitude", np.nan) or np.nan),
         "longitude": float(meta.get("longitude", np.nan) or np.nan),
         "strain": scenario.strain.name,
@@ -150,6 +154,16 @@ def build_dataset(daily, drivers, hourly_sets, scenario, meta: dict, *,
                      "window_days", "drop_scale", "loss_fraction", "max_season_probability"):
             ds.attrs[f"crash_{name}"] = getattr(crash, name)
     return ds
+
+
+def _weather_source(scenario, meta) -> str:
+    """The weather file and its station (or clear-sky mode), for figure footers; the
+    station name is the weather's source, never the site's name."""
+    station = str(meta.get("name") or "").strip()
+    if scenario.weather.source != "file":
+        return "clear-sky weather from monthly normals"
+    name = Path(scenario.weather.path).name
+    return f"{name} ({station})" if station and station != name else name
 
 
 def _version() -> str:

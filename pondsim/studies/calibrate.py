@@ -1330,11 +1330,11 @@ def write_fitted_scenario(fit: PilotFit, scenario_path, out_path) -> Path:
     return atomic_write(out_path, write)
 
 
-def plot_fit(fit: PilotFit, path) -> Path:
-    """Observed and fitted density with harvests marked, and the log residuals (PNG)."""
-    from matplotlib.figure import Figure
+def plot_fit(fit: PilotFit, path, *, context: str = "") -> Path:
+    """Observed and fitted density with harvests marked, and the log residuals (PNG).
 
-    from pondsim.results.files import atomic_write
+    *context* is the title's second line (the scenario's site, study and strain)."""
+    from pondsim.results import figstyle as fs
 
     m = fit.model
     est = fit.table["estimate"].to_numpy()
@@ -1342,45 +1342,50 @@ def plot_fit(fit: PilotFit, path) -> Path:
     curve = m.run(est[None, :], all_days=True)[0]
     if m.sample_hour < m.harvest_hour:  # day 0 is sampled before the reset to x0
         days, curve = days[1:], curve[1:]
-    fig = Figure(figsize=(8.5, 6.0), layout="constrained")
-    ax, axr = fig.subplots(2, 1, sharex=True, height_ratios=[3, 1.4])
-    ax.plot(days, curve, "-", color="#1b4f72", lw=1.4,
+    fig, (ax, axr) = fs.new_figure("Pilot fit: observed and modelled density", context,
+                                   nrows=2, size=(9.0, 6.8), sharex=True,
+                                   height_ratios=[3, 1.4])
+    ax.plot(days, curve, "-", color=fs.OKABE_ITO["blue"], lw=1.4,
             label=f"model at {m.sample_hour:02d}:00 ({fit.growth_form})")
-    ax.plot(m.obs.time, m.obs.density_g_m3, "o", ms=4, mfc="white", color="#b9770e",
-            label="observed")
-    for d in np.flatnonzero(m.fraction > 0):
+    ax.plot(m.obs.time, m.obs.density_g_m3, "o", ms=4, mfc="white",
+            color=fs.OKABE_ITO["vermillion"], label="observed")
+    for i, d in enumerate(np.flatnonzero(m.fraction > 0)):
         when = m.start + pd.Timedelta(days=int(d), hours=m.harvest_hour)
-        ax.axvline(when, color="0.6", ls=":", lw=0.9)
-        axr.axvline(when, color="0.6", ls=":", lw=0.9)
-    ax.set_ylabel("culture density [g m-3 AFDW]")
-    ax.set_title("pilot fit: observed and modelled density (dotted: harvests)")
-    ax.legend(loc="best", fontsize=8)
+        ax.axvline(when, color="0.55", ls=":", lw=0.9, label="harvest" if i == 0 else None)
+        axr.axvline(when, color="0.55", ls=":", lw=0.9)
+    ax.set_ylabel("culture density [g m$^{-3}$ AFDW]")
+    fs.from_zero(ax, top=1.1 * float(np.nanmax([np.nanmax(curve),
+                                                  np.nanmax(m.obs.density_g_m3)])))
+    fs.legend_right(ax)
     axr.axhline(0.0, color="0.3", lw=0.8)
-    axr.plot(m.obs.time, fit.residuals, "o-", ms=3, lw=0.6, color="#1e8449")
-    axr.set_ylabel("residual ln(obs/model) [-]")
-    axr.set_xlabel("date (local standard time)")
-    fig.autofmt_xdate()
-    return atomic_write(Path(path), lambda tmp: fig.savefig(tmp, dpi=110, format="png"))
+    axr.plot(m.obs.time, fit.residuals, "o-", ms=3, lw=0.6, color=fs.OKABE_ITO["bluish green"])
+    axr.set_ylabel("residual\nln(obs/model) [–]")
+    axr.set_xlabel("date [local standard time]")
+    import matplotlib.dates as mdates
+
+    axr.xaxis.set_major_formatter(mdates.DateFormatter("%d %b"))
+    return fs.save(fig, path)
 
 
 def _plot_curve(t, n, fit: CurveFit, path, time_unit, density_unit) -> Path:
-    from matplotlib.figure import Figure
+    from pondsim.results import figstyle as fs
 
-    from pondsim.results.files import atomic_write
-
-    fig = Figure(figsize=(8.0, 5.5), layout="constrained")
-    ax, axr = fig.subplots(2, 1, sharex=True, height_ratios=[3, 1.4])
+    fig, (ax, axr) = fs.new_figure("Logistic fit of the observed density", "", nrows=2,
+                                   size=(8.5, 6.2), sharex=True, height_ratios=[3, 1.4])
     r, k, n0 = fit.table["estimate"].to_numpy()[:3]
     tt = np.linspace(t.min(), t.max(), 300)
-    ax.plot(tt, _logistic(tt - t.min(), r, k, n0), "-", color="#1b4f72", label="logistic")
-    ax.plot(t, n, "o", ms=4, mfc="white", color="#b9770e", label="observed")
+    ax.plot(tt, _logistic(tt - t.min(), r, k, n0), "-", color=fs.OKABE_ITO["blue"],
+            label="logistic")
+    ax.plot(t, n, "o", ms=4, mfc="white", color=fs.OKABE_ITO["vermillion"],
+            label="observed")
     ax.set_ylabel(f"density [{density_unit}]")
-    ax.legend(fontsize=8)
+    fs.from_zero(ax, top=1.1 * float(np.nanmax(n)))
+    fs.legend_right(ax)
     axr.axhline(0.0, color="0.3", lw=0.8)
-    axr.plot(t, fit.residuals, "o-", ms=3, lw=0.6, color="#1e8449")
+    axr.plot(t, fit.residuals, "o-", ms=3, lw=0.6, color=fs.OKABE_ITO["bluish green"])
     axr.set_ylabel(f"residual [{density_unit}]")
     axr.set_xlabel(f"time since first sample [{time_unit}]")
-    return atomic_write(Path(path), lambda tmp: fig.savefig(tmp, dpi=110, format="png"))
+    return fs.save(fig, path)
 
 
 # --------------------------------------------------------------------------------------
@@ -1591,7 +1596,10 @@ def cmd_fit(args) -> int:
                               out / f"{Path(args.scenario).stem}_fitted.toml"),
     ]
     if not getattr(args, "no_plots", False):
-        written.append(plot_fit(fit, out / "fit.png"))
+        from pondsim.results.figstyle import context_line
+
+        written.append(plot_fit(fit, out / "fit.png", context=context_line(
+            scenario.site.name, scenario.study_name, scenario.strain.name)))
     print("\nwritten: " + ", ".join(str(p) for p in written))
     return 0
 
