@@ -25,8 +25,9 @@ def policy_summary(ds: xr.Dataset) -> pd.DataFrame:
     Member means. ``washed_out_pct``: share of members whose culture was held at its
     viable floor on more than ``washout_days`` days in a row at least once [%];
     ``days_at_floor``: mean days at the floor in the year. Photosynthetic efficiency is
-    the energy of the harvested biomass (:data:`BIOMASS_ENERGY_KJ_G`) over the incident PAR (converted with the photon
-    conversion used by the light stage) and over total solar (GHI).
+    the energy of the harvested biomass (:data:`BIOMASS_ENERGY_KJ_G`) over the incident
+    PAR (converted with the photon conversion used by the light stage) and over total
+    solar (GHI).
     """
     n_days = ds.sizes["day"]
     harvested = ds["harvested"]  # g m-2 d-1
