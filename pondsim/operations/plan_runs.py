@@ -66,6 +66,16 @@ def ensemble_of(scenario, drivers: Drivers, members: int, seed: int) -> Ensemble
         dewatering_cost_kg_per_m3=scenario.harvest.dewatering_cost_kg_per_m3)
 
 
+def scenario_plans(scenario):
+    """The scenario's policies (one rule all year) and plans as per-season rule lists,
+    with their names: ``(plans, names)``."""
+    by_name = {p.name: p for p in scenario.policies}
+    plans = [[p] * len(scenario.seasons) for p in scenario.policies]
+    plans += [[by_name[pl.policy_by_season[s.name]] for s in scenario.seasons]
+              for pl in scenario.plans]
+    return plans, [p.name for p in scenario.policies] + [pl.name for pl in scenario.plans]
+
+
 @dataclass
 class PlanOutcome:
     """Per plan and member (arrays of shape (p, m)), per plan, season and member

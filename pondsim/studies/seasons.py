@@ -181,7 +181,7 @@ def whole_year_plan(scenario, slice_best: pd.DataFrame, members: int, seed: int,
     """
     from pondsim.glossary import G_M2_TO_T_HA
     from pondsim.operations.harvest import season_of_day
-    from pondsim.operations.plan_runs import ensemble_of, paired_difference
+    from pondsim.operations.plan_runs import ensemble_of, paired_difference, scenario_plans
     from pondsim.operations.simulate import (
         build_drivers,
         hourly_light_and_water,
@@ -194,17 +194,10 @@ def whole_year_plan(scenario, slice_best: pd.DataFrame, members: int, seed: int,
     period_of_day = season_of_day(hourly.index[::24], scenario.seasons)
     limits = Limits(scenario.crash.max_season_probability,
                     scenario.harvest.dewatering_capacity_m3_per_d)
-    by_name = {p.name: p for p in scenario.policies}
-    plans = {pl.name: pl for pl in scenario.plans}
-
-    def rule(season, name):
-        return by_name[plans[name].policy_by_season[season.name]] if name in plans \
-            else by_name[name]
-
-    start = [rule(s, slice_best.loc[s.name, "best_policy"]) for s in scenario.seasons]
-    originals = [[p] * len(scenario.seasons) for p in scenario.policies]
-    originals += [[rule(s, pl.name) for s in scenario.seasons] for pl in scenario.plans]
-    names = [p.name for p in scenario.policies] + [pl.name for pl in scenario.plans]
+    originals, names = scenario_plans(scenario)
+    by_name = dict(zip(names, originals, strict=True))
+    start = [by_name[slice_best.loc[s.name, "best_policy"]][i]
+             for i, s in enumerate(scenario.seasons)]
     plan, found, row, theirs = coordinate_search(ens, scenario.policies, start,
                                                  period_of_day, limits, extra=originals)
     out = stack([select(found, [row]), theirs])

@@ -43,6 +43,7 @@ from pondsim.operations.plan_runs import (
     ensemble_of,
     paired_difference,
     run_plans,
+    scenario_plans,
 )
 from pondsim.scenario import Policy
 from pondsim.studies.seasons import (
@@ -321,7 +322,7 @@ def tune_scenario(scenario, *, n_years: int, members: int, seed: int | None = No
 
     ens, dates = ensemble(seed, seed)
     period_of_day = season_of_day(dates, scenario.seasons)
-    originals, original_names = _original_plans(scenario)
+    originals, original_names = scenario_plans(scenario)
     out = run_plans(ens, originals, period_of_day)
     i, _ = best_index(out, limits)
     start, _, _, _ = coordinate_search(ens, scenario.policies, originals[i],
@@ -360,8 +361,8 @@ def tune_scenario(scenario, *, n_years: int, members: int, seed: int | None = No
             plan[s] = start[s]
     table["gain_g_m2"] = [gain[names.index(n)] for n in table.index]
     table["gain_se_g_m2"] = [se[names.index(n)] for n in table.index]
-    table["kept"] = ["tuned" if plan[names.index(n)] is tuned[names.index(n)]
-                     else "existing" for n in table.index]
+    table["kept"] = ["existing" if plan[names.index(n)] is start[names.index(n)]
+                     else "tuned" for n in table.index]
     table["recommended_rule"] = [describe(plan[names.index(n)]) for n in table.index]
 
     entries = [plan] + originals
@@ -374,16 +375,6 @@ def tune_scenario(scenario, *, n_years: int, members: int, seed: int | None = No
     check = check_table(out, [0, j], ["recommended plan", best_name], scenario)
     return TuneResult(plan=plan, tuned=tuned, start=start, table=table, check=check,
                       best_original=best_name)
-
-
-def _original_plans(scenario):
-    """The scenario's policies (one rule all year) and plans as per-season rule lists."""
-    by_name = {p.name: p for p in scenario.policies}
-    plans = [[p] * len(scenario.seasons) for p in scenario.policies]
-    plans += [[by_name[pl.policy_by_season[s.name]] for s in scenario.seasons]
-              for pl in scenario.plans]
-    names = [p.name for p in scenario.policies] + [pl.name for pl in scenario.plans]
-    return plans, names
 
 
 def check_table(outcome, rows, labels, scenario) -> pd.DataFrame:
