@@ -476,22 +476,16 @@ def cmd_tune(args) -> int:
     objective = "whole-year biomass" if h.dewatering_cost_kg_per_m3 == 0 else \
         f"whole-year net product (dewatering at {h.dewatering_cost_kg_per_m3:g} kg/m3)"
     print(f"objective: {objective}; limits: " + "; ".join(limits))
-    print(f"a tuned rule replaces the existing one only where fresh draws show it better: "
-          f"mean paired gain > {Z_KEEP:g} standard errors (common random numbers)\n")
+    print("on fresh draws a tuned rule replaces the existing one where it breaks the limits "
+          f"less, or, with equal standing, where its mean paired gain in whole-year value "
+          f"exceeds {Z_KEEP:g} standard errors (common random numbers)\n")
     for season, p in zip(scenario.seasons, result.plan, strict=True):
         r = result.table.loc[season.name]
-        if r["kept"] == "tuned":
-            why = (f"tuned: gain {r['gain_g_m2'] * 0.01:+.2f} +/- "
-                   f"{r['gain_se_g_m2'] * 0.01:.2f} t/ha/yr (mean +/- SE)"
-                   if np.isfinite(r["gain_g_m2"]) else "tuned")
-        elif np.isfinite(r["gain_g_m2"]):
-            why = (f"existing rule '{r['started_from']}' kept: tuned gain "
-                   f"{r['gain_g_m2'] * 0.01:+.2f} +/- {r['gain_se_g_m2'] * 0.01:.2f} "
-                   "t/ha/yr not shown")
-        else:
-            why = f"existing rule '{r['started_from']}': the search found nothing better"
-        flag = "" if r["recommended_within_limits"] else \
-            "  [limits not met on fresh draws: no rule tried meets them]"
+        why = r["reason"]
+        if np.isfinite(r["gain_g_m2"]):
+            why += (f"; tuned rule's gain {r['gain_g_m2'] * 0.01:+.2f} +/- "
+                    f"{r['gain_se_g_m2'] * 0.01:.2f} t/ha/yr (mean +/- SE)")
+        flag = "" if r["recommended_within_limits"] else "  [limits not met on fresh draws]"
         print(f"  {season.name:>10}: {describe(p)}  ({why}){flag}")
     print(f"\non fresh draws, recommended plan vs the best original policy or plan "
           f"('{result.best_original}'); mean, with the pct10-pct90 band holding the middle "

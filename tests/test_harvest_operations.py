@@ -36,7 +36,7 @@ from pondsim.operations.harvest import (
 )
 from pondsim.operations.plan_runs import Ensemble, PlanOutcome, paired_difference, run_plans
 from pondsim.scenario import Policy, Season
-from pondsim.studies.seasons import Limits, best_index, coordinate_search
+from pondsim.studies.seasons import Limits, best_index, coordinate_search, keep_new_rule
 from pondsim.studies.tune import tune_plan
 
 ALL_YEAR = [Season("all", tuple(range(1, 13)))]
@@ -229,3 +229,15 @@ def test_paired_difference_matches_scipy_paired_t():
     t = stats.ttest_rel(a, b).statistic  # scipy reference
     assert mean / se == pytest.approx(t, rel=1e-12)
     assert se < np.std(a - common) * 2  # the shared noise is gone from the SE
+
+
+def test_a_tuned_rule_must_beat_the_existing_one_on_fresh_draws():
+    ok = (0.0, 0.0, 0.0)
+    # Equal standing: the paired gain must exceed z standard errors (z = 2).
+    assert keep_new_rule(ok, ok, gain=2.1, se=1.0, z=2.0)
+    assert not keep_new_rule(ok, ok, gain=1.9, se=1.0, z=2.0)
+    assert not keep_new_rule(ok, ok, gain=-5.0, se=1.0, z=2.0)
+    # A rule that breaks the limits less wins whatever the gain; washout counts first.
+    assert keep_new_rule(ok, (0.0, 0.0, 0.7), gain=-50.0, se=1.0, z=2.0)
+    assert not keep_new_rule((0.0, 0.0, 0.02), ok, gain=50.0, se=1.0, z=2.0)
+    assert keep_new_rule((0.0, 0.5, 0.0), (0.1, 0.0, 0.0), gain=0.0, se=1.0, z=2.0)

@@ -58,8 +58,8 @@ def best_index(outcome: PlanOutcome, limits: Limits, season: int | None = None,
 
     Acceptable: no washout, crash and dewatering limits met, in *season* (in every
     season when None). Where none is acceptable: the least offending (washout share
-    first, then crash excess, then dewatering excess, then value). Returns
-    ``(index, acceptable)``.
+    first, then dewatering excess, a physical limit, then crash excess, then value).
+    Returns ``(index, acceptable)``.
     """
     among = np.arange(outcome.value.shape[0]) if among is None else np.asarray(among)
     v = violations(outcome, limits)[among]
@@ -70,8 +70,43 @@ def best_index(outcome: PlanOutcome, limits: Limits, season: int | None = None,
     ok = excess.max(axis=1) == 0
     if ok.any():
         return int(among[np.argmax(np.where(ok, value, -np.inf))]), True
-    order = np.lexsort((-value, excess[:, 2], excess[:, 1], excess[:, 0]))
+    order = np.lexsort((-value, excess[:, 1], excess[:, 2], excess[:, 0]))
     return int(among[order[0]]), False
+
+
+def offence(outcome: PlanOutcome, limits: Limits, row: int, season: int) -> tuple:
+    """How plan *row* breaks the limits in *season*, as a tuple that sorts the way
+    :func:`best_index` ranks (washout share, dewatering excess, crash excess); all zero
+    when the season is acceptable."""
+    v = violations(outcome, limits)[row, season]
+    return float(v[0]), float(v[2]), float(v[1])
+
+
+def keep_new_rule(new: tuple, old: tuple, gain: float, se: float, z: float) -> bool:
+    """Whether a new rule replaces the old one in a season, on draws neither was chosen
+    on. *new*, *old*: their :func:`offence` tuples; *gain*, *se*: mean paired gain of
+    the new rule in whole-year value and its standard error.
+
+    A rule that breaks the limits less wins; with equal standing, the new rule must gain
+    more than *z* standard errors (one-sided z-test of the paired difference).
+    """
+    if new != old:
+        return new < old
+    return gain > z * se
+
+
+def best_original(outcome: PlanOutcome, limits: Limits, among) -> int:
+    """The best of a set of plans as a user would name it: the highest whole-year value
+    among those acceptable in every season; else among those that never wash out; else
+    the least offending (:func:`best_index`)."""
+    among = np.asarray(among)
+    i, ok = best_index(outcome, limits, among=among)
+    if ok:
+        return i
+    clean = among[outcome.washed[among].any(axis=(1, 2)) == 0]
+    if len(clean) == 0:
+        return i
+    return int(clean[np.argmax(outcome.value[clean].mean(axis=1))])
 
 
 def coordinate_search(ens: Ensemble, policies, start, period_of_day, limits: Limits,
@@ -201,7 +236,7 @@ def whole_year_plan(scenario, slice_best: pd.DataFrame, members: int, seed: int,
     plan, found, row, theirs = coordinate_search(ens, scenario.policies, start,
                                                  period_of_day, limits, extra=originals)
     out = stack([select(found, [row]), theirs])
-    j, _ = best_index(out, limits, among=np.arange(1, len(names) + 1))
+    j = best_original(out, limits, np.arange(1, len(names) + 1))
     result = plan_table(scenario.seasons, plan, out, 0, limits)
     result["slice_best"] = [str(slice_best.loc[s.name, "best_policy"])
                             for s in scenario.seasons]

@@ -20,10 +20,12 @@ and no member washed out (held at its viable floor for more than
 ``harvest.washout_days`` days in a row).
 
 Afterwards :func:`tune_scenario` checks each season's tuned rule against the existing
-rule it started from on FRESH draws (new weather years and crash streams): the tuned rule
-is kept only where the paired difference of whole-year value over common random numbers
-exceeds twice its standard error (a one-sided z-test at about 2.3 %) and the tuned plan
-meets the limits there; otherwise the existing rule stays.
+rule it started from on FRESH draws (new weather years and crash streams), with the rest
+of the tuned plan in place: a rule that breaks the season's limits less there wins;
+with equal standing the tuned rule is kept only where the paired difference of
+whole-year value over common random numbers exceeds twice its standard error (a
+one-sided z-test at about 2.3 %); otherwise the existing rule stays
+(:func:`pondsim.studies.seasons.keep_new_rule`).
 """
 
 from __future__ import annotations
@@ -49,7 +51,10 @@ from pondsim.scenario import Policy
 from pondsim.studies.seasons import (
     Limits,
     best_index,
+    best_original,
     coordinate_search,
+    keep_new_rule,
+    offence,
     select,
     stack,
     violations,
@@ -278,7 +283,7 @@ class TuneResult:
     table : per season: the search (:func:`tune_plan` columns), the fresh-draw test
         (``gain_g_m2``, ``gain_se_g_m2``: mean paired gain of the tuned rule over the
         existing one in whole-year value and its standard error) and the decision
-        (``kept``: "tuned" or "existing") and whether the recommended rule meets the
+        (``kept``: "tuned" or "existing", ``reason``) and whether the recommended rule meets the
         limits on the fresh draws (``recommended_within_limits``);
     check : the recommended plan against the best of the scenario's own policies and
         plans on fresh draws (see :func:`check_table`);
@@ -303,9 +308,10 @@ def tune_scenario(scenario, *, n_years: int, members: int, seed: int | None = No
     policies, season by season on whole years (:mod:`pondsim.studies.seasons`): the
     *existing* plan; (2) :func:`tune_plan` from it; (3) on fresh weather years and crash
     streams (seed + 1), each season's tuned rule against the existing one with the rest
-    of the tuned plan in place: kept where the mean paired gain exceeds
-    :data:`Z_KEEP` standard errors and the limits hold; (4) the recommended plan against
-    the best original policy or plan on the same fresh draws.
+    of the tuned plan in place (:func:`pondsim.studies.seasons.keep_new_rule`: the rule
+    that breaks the limits less, else the tuned rule only where its mean paired gain
+    exceeds :data:`Z_KEEP` standard errors); (4) the recommended plan against the best
+    original policy or plan on the same fresh draws.
     """
     from pondsim.operations.simulate import build_drivers, hourly_light_and_water
     from pondsim.studies.outlook import weather_years
@@ -348,21 +354,25 @@ def tune_scenario(scenario, *, n_years: int, members: int, seed: int | None = No
     changed = [s for s in range(len(names)) if tuned[s] is not start[s]]
     trial = [tuned] + [_with(tuned, s, start[s]) for s in changed]
     out = run_plans(fresh, trial, period_of_day)
-    v = violations(out, limits)
     plan = list(tuned)
     gain = np.full(len(names), np.nan)
     se = np.full(len(names), np.nan)
+    reason = ["existing: the search found no better rule"] * len(names)
     for k, s in enumerate(changed, start=1):
         gain[s], se[s] = paired_difference(out.value[0], out.value[k])
-        tuned_ok = v[0, :, 0].max() == 0 and v[0, s, 1:].max() == 0
-        existing_ok = v[k, :, 0].max() == 0 and v[k, s, 1:].max() == 0
-        better = gain[s] > Z_KEEP * se[s]
-        if not ((better and tuned_ok) or (tuned_ok and not existing_ok)):
+        new, old = offence(out, limits, 0, s), offence(out, limits, k, s)
+        if keep_new_rule(new, old, gain[s], se[s], Z_KEEP):
+            reason[s] = "tuned: breaks the limits less" if new != old else \
+                f"tuned: gain > {Z_KEEP:g} SE"
+        else:
             plan[s] = start[s]
+            reason[s] = "existing: the tuned rule breaks the limits more" if new != old \
+                else f"existing: gain not > {Z_KEEP:g} SE"
     table["gain_g_m2"] = [gain[names.index(n)] for n in table.index]
     table["gain_se_g_m2"] = [se[names.index(n)] for n in table.index]
     table["kept"] = ["existing" if plan[names.index(n)] is start[names.index(n)]
                      else "tuned" for n in table.index]
+    table["reason"] = [reason[names.index(n)] for n in table.index]
     table["recommended_rule"] = [describe(plan[names.index(n)]) for n in table.index]
 
     entries = [plan] + originals
@@ -370,7 +380,7 @@ def tune_scenario(scenario, *, n_years: int, members: int, seed: int | None = No
     v = violations(out, limits)[0]
     table["recommended_within_limits"] = [
         bool(v[:, 0].max() == 0 and v[names.index(n), 1:].max() == 0) for n in table.index]
-    j, _ = best_index(out, limits, among=np.arange(1, len(entries)))
+    j = best_original(out, limits, np.arange(1, len(entries)))
     best_name = original_names[j - 1]
     check = check_table(out, [0, j], ["recommended plan", best_name], scenario)
     return TuneResult(plan=plan, tuned=tuned, start=start, table=table, check=check,
