@@ -132,9 +132,9 @@ def test_best_index_skips_washout_and_limits():
                       farm_peak_m3_d=np.array([[100.0], [100.0], [300.0]]))
     assert best_index(out, Limits(0.5)) == (2, True)
     assert best_index(out, Limits(1.0)) == (1, True)
-    # Nothing acceptable: washout ranks worst, then excess crash risk, then excess
-    # dewatering load.
-    assert best_index(out, Limits(0.5, dewatering_m3_per_d=200.0)) == (2, False)
+    # Nothing acceptable: washout ranks worst, then excess dewatering load (a physical
+    # limit), then excess crash risk.
+    assert best_index(out, Limits(0.5, dewatering_m3_per_d=200.0)) == (1, False)
 
 
 # ---- surplus production with the floor in place -----------------------------------------
