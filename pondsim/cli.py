@@ -254,10 +254,11 @@ def cmd_run(args) -> int:
     print("\nfarm biomass (t AFDW per year): "
           + ", ".join(f"{p}: {v:,.1f}" for p, v in farm_t.items()))
     for p in summary.index[summary["washed_out_pct"] > 0]:
-        print(f"WARNING: policy {p!r} washes the culture out in "
-              f"{summary.loc[p, 'washed_out_pct']:.0f} % of members: it dilutes faster than "
-              "the culture grows and only the viable floor holds it; do not run it there "
-              "(see pondsim compare for the seasons).")
+        print(f"WARNING: under policy {p!r} the culture washes out in "
+              f"{summary.loc[p, 'washed_out_pct']:.0f} % of members (held at its viable "
+              f"floor on more than {ds.attrs['washout_days']} days in a row): the rule "
+              "dilutes faster than the culture grows, or the site and season do not let it "
+              "grow; do not run it there (pondsim compare shows the seasons).")
     bad = summary.index[~summary["plausible"]]
     for p in bad:
         print(f"WARNING: policy {p!r} converts more than 4.6 % of total solar radiation to "

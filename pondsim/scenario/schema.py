@@ -151,8 +151,9 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "washout_days": Key("int", 7, "A member whose culture stays at or below the floor "
                             "(below it at the harvest hour, or its harvest cut back to it) "
                             "on more than this many days in a row is flagged as washed "
-                            "out: the rule dilutes faster than the culture grows. "
-                            "ASSUMPTION (a week: one operating review).", "d", 1, 365),
+                            "out: the rule dilutes faster than the culture grows, or "
+                            "the culture cannot grow there. ASSUMPTION (a week: one "
+                            "operating review).", "d", 1, 365),
         "dewatering_capacity_m3_per_d": Key("float", None, "Culture volume the whole "
                                             "farm's dewatering can process per day (all "
                                             "ponds together); `pondsim tune` keeps the "
