@@ -368,7 +368,8 @@ def cmd_outlook(args) -> int:
     from pondsim.glossary import CAUTION
     from pondsim.results.files import save, write_csv
     from pondsim.scenario import load_scenario
-    from pondsim.studies.inputs_bill import bill_from_results
+    from pondsim.studies.bill import describe as describe_bill
+    from pondsim.studies.bill import scenario_bill
     from pondsim.studies.outlook import annual_table, monthly_bands, run_outlook, sensitivity
 
     _check_count(args.years, "--years")
@@ -391,16 +392,15 @@ def cmd_outlook(args) -> int:
         print(f"Sobol sensitivity of '{best}': {unc.sobol_samples} x "
               f"{len(unc.parameters) + 2} runs ...", flush=True)
         sens = sensitivity(scenario, best, n=unc.sobol_samples, seed=seed)
-    quiet = ds.copy()
-    for name in ("evaporation", "rain"):
-        if "member" in ds[name].dims:
-            quiet[name] = ds[name].mean("member")
-    bill = bill_from_results(quiet, policy=best, rain_mm_daily=quiet["rain"].values)
+    bill = scenario_bill(ds, scenario, best)
     elapsed = time.perf_counter() - t0
     out.mkdir(parents=True, exist_ok=True)
     written = [save(ds, out / "results.nc"), write_csv(annual, out / "annual_yield.csv"),
                write_csv(bands, out / "monthly_bands.csv"),
-               write_csv(bill, out / "inputs_bill.csv")]
+               write_csv(bill.monthly, out / "inputs_bill.csv"),
+               write_csv(bill.lines, out / "inputs_bill_lines.csv")]
+    if bill.cost_per_t is not None:
+        written.append(write_csv(bill.cost_per_t, out / "inputs_cost_per_t.csv"))
     if sens is not None:
         written.append(write_csv(sens, out / "sensitivity.csv"))
     print(f"{scenario.study_name}: {n_years} weather years x {n_draws} parameter draws x "
@@ -418,10 +418,7 @@ def cmd_outlook(args) -> int:
         print("\nSobol indices of annual yield (first order, total):")
         for name, r in sens.iterrows():
             print(f"  {name:>24}: {r['first_order']:.2f}  {r['total']:.2f}")
-    yr = bill.loc["year"]
-    print(f"\ninputs bill for '{best}' (farm, per year): biomass {yr['biomass_t']:,.1f} t, "
-          f"CO2 {yr['co2_t']:,.1f} t, N {yr['n_t']:,.2f} t, P {yr['p_t']:,.2f} t, makeup "
-          f"water {yr['makeup_water_m3']:,.0f} m3, mixing {yr['mixing_MWh']:,.1f} MWh")
+    print("\n" + describe_bill(bill))
     from pondsim.results.figures import outlook_figures
 
     written += outlook_figures(ds, bands, sens, out)

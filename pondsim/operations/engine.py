@@ -133,7 +133,9 @@ class Daily:
     density at ``Operation.sample_hour`` (None unless asked); at_floor (bool) the culture
     was at its viable floor at the harvest hour (see
     :func:`pondsim.operations.harvest.cut_back_to_floor`). ``ledger`` holds the
-    per-member totals [g m-3]: inoculated, grown, respired, removed, lost, final.
+    per-member totals [g m-3]: inoculated, grown, respired, removed, lost, final;
+    ``grown`` and ``respired`` [g m-3] are the same two terms per day (gross growth and
+    maintenance respiration of the day, as booked in the ledger).
     """
 
     density: np.ndarray
@@ -147,6 +149,8 @@ class Daily:
     ledger: dict
     sampled: np.ndarray | None = None
     at_floor: np.ndarray | None = None
+    grown: np.ndarray | None = None
+    respired: np.ndarray | None = None
 
 
 def _member_view(a: np.ndarray, set_of_member: np.ndarray | None):
@@ -332,6 +336,7 @@ def integrate(drivers: Drivers, rules: HarvestRules, operation: Operation, *,
         status=np.zeros((n, n_days), dtype=np.int8), ledger=totals,
         sampled=None if op.sample_hour is None else np.zeros((n, n_days)),
         at_floor=np.zeros((n, n_days), dtype=bool),
+        grown=np.zeros((n, n_days)), respired=np.zeros((n, n_days)),
     )
     if crash is not None:
         smooth = crash.smoothed(drivers.capacity)
@@ -341,6 +346,7 @@ def integrate(drivers: Drivers, rules: HarvestRules, operation: Operation, *,
                               else stream_of_member)
     h6 = STEP_D / 6.0
     rate_sum = np.zeros(n)
+    grown_before, respired_before = np.zeros(n), np.zeros(n)
 
     for day in range(n_days):
         # Inoculation at the start of the day: first start, and restarts after crashes.
@@ -397,6 +403,10 @@ def integrate(drivers: Drivers, rules: HarvestRules, operation: Operation, *,
             totals["respired"] += resp
         out.growth_rate[:, day] = np.where(status == STATUS_GROWING,
                                            rate_sum / HOURS_PER_DAY, 0.0)
+        # daily terms from the running ledger totals: no per-hour cost
+        out.grown[:, day] = totals["grown"] - grown_before
+        out.respired[:, day] = totals["respired"] - respired_before
+        grown_before, respired_before = totals["grown"].copy(), totals["respired"].copy()
         since += 1
         if crash is not None:
             hazard = crash.hazard(x, k_smooth(day), k_fall(day))
