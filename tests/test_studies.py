@@ -154,6 +154,7 @@ def test_tune_command_writes_a_runnable_scenario(tmp_path):
                 "net_product_mean_t_ha_yr", "value_gain_mean_t_ha_yr"):
         assert np.isfinite(check[col]).all(), col
     assert (check["net_product_mean_t_ha_yr"] < check["biomass_mean_t_ha_yr"]).all()
+    assert check.loc["recommended plan", "p_washout_year"] == 0  # never a washed-out rule
 
 
 def test_outlook_command_writes_tables_and_figures(tmp_path, capsys):
