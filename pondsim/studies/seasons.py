@@ -116,7 +116,8 @@ def coordinate_search(ens: Ensemble, policies, start, period_of_day, limits: Lim
     Each pass runs the current plan and every one-season change of it in one engine
     pass; every season then takes its best rule given the others (the current plan
     stays where no change is better). Stops when no season changes, when a plan comes
-    back, or after *max_passes*; returns the best acceptable plan seen.
+    back, or after *max_passes*; returns the best plan seen (acceptable first, then
+    the least offending, then the highest whole-year value).
 
     Plans in *extra* (e.g. the scenario's own policies and plans) ride along in the
     first pass, on the same members.
@@ -128,7 +129,7 @@ def coordinate_search(ens: Ensemble, policies, start, period_of_day, limits: Lim
     n_seasons = len(start)
     current = list(start)
     seen = []
-    best = None  # (acceptable, mean value, plan, outcome, row)
+    best = None  # (ranking key, plan, outcome, row)
     extra_out = None
     for k in range(max_passes):
         plans = [current]
@@ -145,10 +146,11 @@ def coordinate_search(ens: Ensemble, policies, start, period_of_day, limits: Lim
         if n_search < len(plans):
             extra_out = select(out, slice(n_search, None))
             out = select(out, slice(0, n_search))
-        _, ok0 = best_index(out, limits, among=[0])
-        cand = (ok0, float(out.value[0].mean()), list(current), out, 0)
-        if best is None or (cand[0], cand[1]) > (best[0], best[1]):
-            best = cand
+        v = violations(out, limits)[0]  # (s, 3)
+        # Plans rank as best_index ranks them: washout, dewatering, crash, then value.
+        key = (-v[:, 0].max(), -v[:, 2].sum(), -v[:, 1].sum(), float(out.value[0].mean()))
+        if best is None or key > best[0]:
+            best = (key, list(current), out, 0)
         seen.append(tuple(p.name for p in current))
         new = list(current)
         for s in range(n_seasons):
@@ -158,7 +160,7 @@ def coordinate_search(ens: Ensemble, policies, start, period_of_day, limits: Lim
         if tuple(p.name for p in new) in seen:
             break
         current = new
-    _, _, plan, out, row = best
+    _, plan, out, row = best
     return plan, out, row, extra_out
 
 
