@@ -30,6 +30,7 @@ class Weather:
     wind_height_m: float
     max_gap_h: int
     normals: dict[str, tuple[float, ...]] | None
+    site_check: str = "warn"  # 'warn' or 'strict' (pondsim.forcing.sitecheck)
 
 
 @dataclass(frozen=True)

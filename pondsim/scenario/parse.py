@@ -268,7 +268,7 @@ def _parse_uncertainty(raw, strain: Strain, path, base_dir) -> Uncertainty:
                                  f"{d} ({', '.join(k)})" for d, k in DISTRIBUTIONS.items()),
                              path=path, field=where)
         dist = spec["distribution"]
-        if dist not in DISTRIBUTIONS:
+        if not isinstance(dist, str) or dist not in DISTRIBUTIONS:
             hint = did_you_mean(str(dist), DISTRIBUTIONS)
             raise InputError(f"unknown distribution {dist!r}{hint}; allowed: "
                              + ", ".join(DISTRIBUTIONS), path=path,
@@ -466,11 +466,32 @@ def load_scenario(path: str | Path) -> Scenario:
     if not path.is_file():
         raise InputError("scenario file not found", path=path)
     try:
-        with path.open("rb") as fh:
-            data = tomllib.load(fh)
+        raw = path.read_bytes()
+    except OSError as err:
+        raise InputError(f"cannot read the scenario file: {err.strerror or err}",
+                         path=path) from None
+    try:
+        data = tomllib.loads(decode_text(raw, path))
     except tomllib.TOMLDecodeError as err:
         raise InputError(f"not valid TOML: {err}", path=path) from None
-    return parse_scenario(data, path)
+    try:
+        return parse_scenario(data, path)
+    except (TypeError, AttributeError) as err:  # safety net: a value of an odd type
+        raise InputError(f"a value has a type the scenario does not allow ({err}); see "
+                         "the key reference (pondsim keys)", path=path) from None
+
+
+def decode_text(raw: bytes, path) -> str:
+    """UTF-8 text of a file (a leading byte-order mark is dropped); a byte that is not
+    UTF-8 raises :class:`InputError` naming its line and column."""
+    try:
+        return raw.decode("utf-8-sig")
+    except UnicodeDecodeError as err:
+        head = raw[:err.start]
+        line = head.count(b"\n") + 1
+        column = err.start - (head.rfind(b"\n") + 1) + 1
+        raise InputError(f"not UTF-8 text: byte 0x{raw[err.start]:02x} at line {line}, "
+                         f"column {column}; save the file as UTF-8", path=path) from None
 
 
 

@@ -52,6 +52,13 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "wind_height_m": Key("float", 10.0, "Height of the wind measurement.", "m", 0.5, 100),
         "max_gap_h": Key("int", 3, "Longest gap of missing hours filled by interpolation.",
                          "h", 0, 24),
+        "site_check": Key("str", "warn", "What to do when the site disagrees with the "
+                          "weather: latitude/longitude beyond 1 deg or another UTC offset "
+                          "than the file header, or the data's daily irradiance peak more "
+                          "than 0.4 h from the computed solar noon (assumption-based "
+                          "tolerances, see pondsim.forcing.sitecheck). 'warn' notes it in "
+                          "the summary; 'strict' refuses the run (also: --strict).",
+                          choices=("warn", "strict")),
     },
     "weather.normals": {
         "temp_max_c": Key("floats12", None, "Mean daily maximum air temperature per month.",

@@ -287,7 +287,8 @@ class TuneResult:
         limits on the fresh draws (``recommended_within_limits``);
     check : the recommended plan against the best of the scenario's own policies and
         plans on fresh draws (see :func:`check_table`);
-    best_original : name of that best original policy or plan.
+    best_original : name of that best original policy or plan;
+    meta : the weather metadata of the tuning years (site check, notes).
     """
 
     plan: list
@@ -296,6 +297,7 @@ class TuneResult:
     table: pd.DataFrame
     check: pd.DataFrame
     best_original: str
+    meta: dict = dataclasses.field(default_factory=dict)
 
 
 def tune_scenario(scenario, *, n_years: int, members: int, seed: int | None = None,
@@ -321,12 +323,12 @@ def tune_scenario(scenario, *, n_years: int, members: int, seed: int | None = No
     limits = Limits(scenario.crash.max_season_probability, h.dewatering_capacity_m3_per_d)
 
     def ensemble(year_seed, crash_seed):
-        years, _ = weather_years(scenario, n_years, year_seed)
+        years, meta = weather_years(scenario, n_years, year_seed)
         hourly = [hourly_light_and_water(t, scenario) for t in years]
         return ensemble_of(scenario, build_drivers(hourly, scenario), members,
-                           crash_seed), hourly[0].index[::24]
+                           crash_seed), hourly[0].index[::24], meta
 
-    ens, dates = ensemble(seed, seed)
+    ens, dates, meta = ensemble(seed, seed)
     period_of_day = season_of_day(dates, scenario.seasons)
     originals, original_names = scenario_plans(scenario)
     out = run_plans(ens, originals, period_of_day)
@@ -350,7 +352,7 @@ def tune_scenario(scenario, *, n_years: int, members: int, seed: int | None = No
     table.insert(0, "started_from", [start[names.index(n)].name for n in table.index])
 
     # Fresh draws: new weather years and crash streams.
-    fresh, _ = ensemble(seed + 1, seed + 1)
+    fresh, _, _ = ensemble(seed + 1, seed + 1)
     changed = [s for s in range(len(names)) if tuned[s] is not start[s]]
     trial = [tuned] + [_with(tuned, s, start[s]) for s in changed]
     out = run_plans(fresh, trial, period_of_day)
@@ -384,7 +386,7 @@ def tune_scenario(scenario, *, n_years: int, members: int, seed: int | None = No
     best_name = original_names[j - 1]
     check = check_table(out, [0, j], ["recommended plan", best_name], scenario)
     return TuneResult(plan=plan, tuned=tuned, start=start, table=table, check=check,
-                      best_original=best_name)
+                      best_original=best_name, meta=dict(meta))
 
 
 def check_table(outcome, rows, labels, scenario) -> pd.DataFrame:
