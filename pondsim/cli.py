@@ -411,15 +411,29 @@ def cmd_run(args) -> int:
     print_site_check(ds.attrs)
     print()
     cols = ["yield_t_ha_yr", "productivity_g_m2_d", "harvests", "mean_density_g_m3",
-            "crashes", "efficiency_par_pct", "efficiency_solar_pct"]
-    labels = ["yield t/ha/yr", "g/m2/d", "harvests", "mean g/m3", "crashes",
-              "PE PAR %", "PE solar %"]
+            "crashes", "efficiency_par_pct", "efficiency_solar_pct", "washed_out_pct",
+            "days_at_floor"]
+    labels = ["yield t/ha/yr", "g/m2/d", "harvests/yr", "g/m3 growing", "crashes/yr",
+              "PE PAR %", "PE solar %", "washed out %", "floor d/yr"]
     view = summary[cols].copy()
+    for c in ("harvests", "days_at_floor", "washed_out_pct"):  # counts and shares
+        view[c] = view[c].round().astype("Int64")
     view.columns = labels
     print(view.to_string(float_format=lambda v: f"{v:,.2f}"))
+    print(f"(member means over {ds.sizes['member']} member(s); PE: photosynthetic "
+          "efficiency, harvested biomass energy over incident PAR or total solar; washed "
+          "out: members held at the viable floor "
+          f"({ds.attrs['floor_g_m3']:g} g m-3) on more than {ds.attrs['washout_days']} "
+          "days in a row)")
     farm_t = summary["yield_t_ha_yr"] * scenario.pond.farm_area_m2 / 1e4
     print("\nfarm biomass (t AFDW per year): "
           + ", ".join(f"{p}: {v:,.1f}" for p, v in farm_t.items()))
+    for p in summary.index[summary["washed_out_pct"] > 0]:
+        print(f"WARNING: under policy {p!r} the culture washes out in "
+              f"{summary.loc[p, 'washed_out_pct']:.0f} % of members (held at its viable "
+              f"floor on more than {ds.attrs['washout_days']} days in a row): the rule "
+              "dilutes faster than the culture grows, or the site and season do not let it "
+              "grow; do not run it there (pondsim compare shows the seasons).")
     bad = summary.index[~summary["plausible"]]
     for p in bad:
         print(f"WARNING: policy {p!r} converts more than 4.6 % of total solar radiation to "
@@ -431,10 +445,21 @@ def cmd_run(args) -> int:
 
 
 def cmd_compare(args) -> int:
+    import pandas as pd
+
     from pondsim.glossary import CAUTION
-    from pondsim.operations.simulate import crash_model_of, simulate
+    from pondsim.operations.simulate import crash_model_of, load_forcing, simulate
     from pondsim.results.files import save, write_csv
-    from pondsim.studies.compare import best_by_season, risk_calendar, season_table
+    from pondsim.studies.compare import (
+        BAND_NOTE,
+        HEADER_NOTE,
+        best_by_season,
+        comparison_table,
+        comparison_view,
+        risk_calendar,
+        season_table,
+    )
+    from pondsim.studies.seasons import whole_year_plan
 
     scenario = load_checked_scenario(args)
     members = args.members or max(scenario.run.members, 200)
@@ -446,16 +471,20 @@ def cmd_compare(args) -> int:
         crash = CrashModel()  # for the calendar only; no crashes are drawn
     with _output_set(args, "compare", "-compare", seed) as files:
         t0 = time.perf_counter()
-        ds = simulate(scenario, members=members, seed=seed)
-        elapsed = time.perf_counter() - t0
+        forcing = load_forcing(scenario)
+        ds = simulate(scenario, members=members, seed=seed, forcing=forcing)
         table = season_table(ds)
         limit = scenario.crash.max_season_probability
-        best = best_by_season(table, limit)
+        sliced = best_by_season(table, limit)
+        best, versus = whole_year_plan(scenario, sliced, members, seed, forcing=forcing)
+        elapsed = time.perf_counter() - t0
         calendar = risk_calendar(ds, crash)
         files.notes["site_check"] = ds.attrs["site_check"]
         out = files.dir
-        written = [save(ds, out / "results.nc"), write_csv(table, out / "comparison.csv"),
+        written = [save(ds, out / "results.nc"),
+                   write_csv(comparison_table(table), out / "comparison.csv"),
                    write_csv(best, out / "best_by_season.csv"),
+                   write_csv(versus, out / "best_plan_vs_policies.csv"),
                    write_csv(calendar, out / "risk_calendar.csv", index=False)]
         from pondsim.results.figures import compare_figures
 
@@ -464,17 +493,29 @@ def cmd_compare(args) -> int:
           f"{elapsed:.1f} s")
     print_site_check(ds.attrs)
     print()
-    view = table[["yield_t_ha", "yield_pct10_t_ha", "yield_pct90_t_ha", "productivity_g_m2_d",
-                  "harvests", "harvest_volume_m3", "mean_density_g_m3", "expected_crashes",
-                  "p_crash", "days_at_risk", "biomass_lost_g_m2"]].copy()
-    view.columns = ["t/ha", "pct10", "pct90", "g/m2/d", "harvests", "m3/pond", "mean g/m3",
-                    "E[crashes]", "P(crash)", "risk days", "lost g/m2"]
-    print(view.to_string(float_format=lambda v: f"{v:,.2f}"))
-    print(f"\nbest policy per season (risk limit: P(>= 1 crash) <= {limit:.0%} per season):")
+    print(comparison_view(table).to_string())
+    print(f"\n({HEADER_NOTE}.\n{BAND_NOTE}. Season totals are over the season's days: "
+          + ", ".join(f"{s} {int(table.loc[s]['days'].iloc[0])} d"
+                      for s in pd.unique(table.index.get_level_values('season')))
+          + f". Washed out: held at the viable floor ({ds.attrs['floor_g_m3']:g} g m-3) on "
+          f"more than {ds.attrs['washout_days']} days in a row.)")
+    print(f"\nbest plan, each season judged on whole years (risk limit: P(>= 1 crash) <= "
+          f"{limit:.0%} per season; no washout):")
     for season, r in best.iterrows():
-        flag = "" if r["within_risk_limit"] else "  [no policy within the limit: least risky]"
-        print(f"  {season:>10}: {r['best_policy']}  {r['productivity_g_m2_d']:.1f} g/m2/d, "
-              f"P(crash) {r['p_crash']:.0%}{flag}")
+        flag = "" if r["within_limits"] else "  [no rule meets the limits: least offending]"
+        other = "" if r["slice_best"] == r["best_policy"] else \
+            f"  (the season's slice alone would name '{r['slice_best']}')"
+        print(f"  {season:>10}: {r['best_policy']}  {r['yield_mean_t_ha_season']:.2f} "
+              f"t/ha in the season (pct10-pct90 {r['yield_pct10_t_ha_season']:.2f}-"
+              f"{r['yield_pct90_t_ha_season']:.2f}), P(crash) "
+              f"{r['members_crashed_pct_season']:.0f} %{flag}{other}")
+    chosen, rival = versus.iloc[0], versus.iloc[1]
+    print(f"  whole year: {chosen['yield_mean_t_ha_yr']:.2f} t/ha/yr (pct10-pct90 "
+          f"{chosen['yield_pct10_t_ha_yr']:.2f}-{chosen['yield_pct90_t_ha_yr']:.2f}); best "
+          f"single policy or plan '{versus.index[1]}' {rival['yield_mean_t_ha_yr']:.2f} "
+          f"t/ha/yr; paired gain in whole-year value "
+          f"{rival['value_gain_of_chosen_mean_t_ha_yr']:+.2f} +/- "
+          f"{rival['value_gain_of_chosen_se_t_ha_yr']:.2f} t/ha/yr (mean +/- SE)")
     if len(calendar):
         print("\nsteepest falls of K (risk calendar, median member X/K):")
         print(calendar.to_string(index=False, float_format=lambda v: f"{v:,.2f}"))
@@ -613,58 +654,90 @@ def _convergence_text(ds) -> str:
 def cmd_tune(args) -> int:
     import tomllib
 
+    import numpy as np
+
     from pondsim.glossary import CAUTION
-    from pondsim.operations.simulate import simulate
     from pondsim.results.files import write_csv
     from pondsim.scenario import parse_scenario, relocate_text
-    from pondsim.studies.compare import best_by_season, season_table
-    from pondsim.studies.outlook import weather_years
-    from pondsim.studies.tune import describe, tune_scenario, tuned_scenario_text, write_text
+    from pondsim.studies.tune import (
+        Z_KEEP,
+        describe,
+        tune_scenario,
+        tuned_scenario_text,
+        write_text,
+    )
 
     scenario = load_checked_scenario(args)
     n_years = args.years or min(scenario.uncertainty.weather_years, 8)
     seed = scenario.run.seed if args.seed is None else args.seed
     with _output_set(args, "tune", "-tune", seed) as files:
         t0 = time.perf_counter()
-        plan, table = tune_scenario(scenario, n_years=n_years, members=args.members,
-                                    seed=seed, refine=not args.no_refine,
-                                    progress=scenario.run.progress)
+        result = tune_scenario(scenario, n_years=n_years, members=args.members, seed=seed,
+                               refine=not args.no_refine, progress=scenario.run.progress)
         names = [p.name for p in scenario.policies] + [p.name for p in scenario.plans]
         original = relocate_text(Path(args.scenario).read_text(encoding="utf-8"), scenario,
                                  files.folder)
-        text, plan_name = tuned_scenario_text(original, scenario.seasons, plan, names)
+        text, plan_name = tuned_scenario_text(original, scenario.seasons, result.plan, names)
         tuned_path = write_text(files.dir / f"{Path(args.scenario).stem}_tuned.toml", text)
-        # Check the written file (as it will read from the output folder) and compare the
-        # tuned plan with the original policies on fresh crash draws (another seed).
-        tuned = parse_scenario(tomllib.loads(tuned_path.read_text(encoding="utf-8")),
-                               files.final(tuned_path))
-        years, meta = weather_years(tuned, n_years, seed)
-        ds = simulate(tuned, members=args.members, seed=seed + 1, forcing=(years[0], meta),
-                      weather_years=years, progress=False)
-        seasons = season_table(ds)
-        limit = scenario.crash.max_season_probability
-        best = best_by_season(seasons, limit)
+        # The written file must load as it will read from the output folder.
+        parse_scenario(tomllib.loads(tuned_path.read_text(encoding="utf-8")),
+                       files.final(tuned_path))
         elapsed = time.perf_counter() - t0
-        files.notes["site_check"] = meta.get("site_check", "not run")
-        written = [tuned_path, write_csv(table, files.dir / "tuned_plan.csv"),
-                   write_csv(seasons, files.dir / "tuned_comparison.csv")]
+        files.notes["site_check"] = result.meta.get("site_check", "not run")
+        written = [tuned_path, write_csv(result.table, files.dir / "tuned_plan.csv"),
+                   write_csv(result.check, files.dir / "tuned_check.csv")]
+    h, limit = scenario.harvest, scenario.crash.max_season_probability
     print(f"{scenario.study_name}: tuned over {n_years} weather years x {args.members} crash "
-          f"replicates, {elapsed:.1f} s")
-    print_site_check(meta)
-    print(f"\ntuned plan (risk limit P(>= 1 crash) <= {limit:.0%} per season):")
-    for season, p in zip(scenario.seasons, plan, strict=True):
-        r = table.loc[season.name]
-        flag = "" if r["within_risk_limit"] else "  [limit not met: least risky found]"
-        print(f"  {season.name:>10}: {describe(p)}  (P(crash) {r['p_crash']:.0%}){flag}")
-    annual = ds["harvested"].sum("day").mean("member") * 0.01
-    print("\nannual yield on fresh crash draws [t/ha/yr]: "
-          + ", ".join(f"{p}: {float(annual.sel(policy=p)):.1f}" for p in ds["policy"].values))
-    print("best per season on fresh draws: "
-          + ", ".join(f"{s}: {r['best_policy']}" for s, r in best.iterrows()))
-    print(f"\nrun it: pondsim compare {files.final(tuned_path)}")
+          f"replicates, checked on {n_years} fresh weather years and crash draws, "
+          f"{elapsed:.1f} s")
+    print_site_check(result.meta)
+    print()
+    limits = [f"P(>= 1 crash) <= {limit:.0%} per season", "no washout (culture held at its "
+              f"floor for more than {h.washout_days} d in a row)"]
+    if h.dewatering_capacity_m3_per_d is not None:
+        limits.append(f"farm dewatering <= {h.dewatering_capacity_m3_per_d:,.0f} m3/d "
+                      "(7-day mean)")
+    objective = "whole-year biomass" if h.dewatering_cost_kg_per_m3 == 0 else \
+        f"whole-year net product (dewatering at {h.dewatering_cost_kg_per_m3:g} kg/m3)"
+    print(f"objective: {objective}; limits: " + "; ".join(limits))
+    print("on fresh draws a tuned rule replaces the existing one where it breaks the limits "
+          f"less, or, with equal standing, where its mean paired gain in whole-year value "
+          f"exceeds {Z_KEEP:g} standard errors (common random numbers)\n")
+    for season, p in zip(scenario.seasons, result.plan, strict=True):
+        r = result.table.loc[season.name]
+        why = r["reason"]
+        if np.isfinite(r["gain_g_m2"]):
+            why += (f"; tuned rule's gain {r['gain_g_m2'] * 0.01:+.2f} +/- "
+                    f"{r['gain_se_g_m2'] * 0.01:.2f} t/ha/yr (mean +/- SE)")
+        flag = "" if r["recommended_within_limits"] else "  [limits not met on fresh draws]"
+        print(f"  {season.name:>10}: {describe(p)}  ({why}){flag}")
+    print(f"\non fresh draws, recommended plan vs the best original policy or plan "
+          f"('{result.best_original}'); mean, with the pct10-pct90 band holding the middle "
+          "80 % of members:")
+    print(_check_view(result.check).to_string())
+    print(f"\nrun it: pondsim compare {files.final(tuned_path)}  (plan '{plan_name}')")
     _print_written(files, written)
     print("\n" + CAUTION)
     return 0
+
+
+def _check_view(check):
+    """The fresh-draw check for the terminal: one column per quantity, units named."""
+    import pandas as pd
+
+    view = pd.DataFrame(index=check.index)
+    view["biomass mean [t/ha/yr]"] = check["biomass_mean_t_ha_yr"].map("{:,.2f}".format)
+    view["pct10-pct90 [t/ha/yr]"] = [f"{a:,.2f}-{b:,.2f}" for a, b in zip(
+        check["biomass_pct10_t_ha_yr"], check["biomass_pct90_t_ha_yr"], strict=True)]
+    view["dewatering [m3/farm/yr]"] = check["dewatering_mean_m3_farm_yr"].map("{:,.0f}".format)
+    if "net_product_mean_t_ha_yr" in check:
+        view["net product [t/ha/yr]"] = check["net_product_mean_t_ha_yr"].map(
+            "{:,.2f}".format)
+    view[f"value gain vs '{check.index[-1]}' [t/ha/yr, mean +/- SE]"] = [
+        f"{g:+.2f} +/- {e:.2f}" for g, e in zip(check["value_gain_mean_t_ha_yr"],
+                                                check["value_gain_se_t_ha_yr"], strict=True)]
+    view["washed out [% members]"] = (100 * check["p_washout_year"]).round().astype(int)
+    return view
 
 
 if __name__ == "__main__":  # pragma: no cover

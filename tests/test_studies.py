@@ -120,6 +120,26 @@ def test_tune_command_writes_a_runnable_scenario(tmp_path):
                  "--out", str(out)]) == 0
     tuned = load_scenario(out / "kestrel_flats_tuned.toml")
     assert "tuned plan" in [p.name for p in tuned.plans]
+    table = pd.read_csv(out / "tuned_plan.csv", comment="#", index_col=0)
+    # A tuned rule replaces the existing one only where its mean paired gain on fresh
+    # draws exceeds Z_KEEP = 2 standard errors (the stated test).
+    for _, r in table.iterrows():
+        assert r["kept"] in ("tuned", "existing") and r["reason"].startswith(r["kept"])
+        if r["reason"] == "tuned: gain > 2 SE":
+            assert r["gain_g_m2"] > 2 * r["gain_se_g_m2"]
+        if r["reason"] == "existing: gain not > 2 SE":
+            assert not r["gain_g_m2"] > 2 * r["gain_se_g_m2"]
+        if r["kept"] == "tuned":
+            assert r["recommended_rule"] == r["rule"]
+    check = pd.read_csv(out / "tuned_check.csv", comment="#", index_col=0)
+    assert check.index[0] == "recommended plan"
+    # Biomass, dewatering volume and (the demo prices dewatering) net product for the
+    # recommended plan and the best original one on fresh draws.
+    for col in ("biomass_mean_t_ha_yr", "dewatering_mean_m3_farm_yr",
+                "net_product_mean_t_ha_yr", "value_gain_mean_t_ha_yr"):
+        assert np.isfinite(check[col]).all(), col
+    assert (check["net_product_mean_t_ha_yr"] < check["biomass_mean_t_ha_yr"]).all()
+    assert check.loc["recommended plan", "p_washout_year"] == 0  # never a washed-out rule
 
 
 def test_outlook_command_writes_tables_and_figures(tmp_path, capsys):

@@ -12,7 +12,7 @@ import xarray as xr
 
 from pondsim.glossary import CAUTION, RESULTS
 from pondsim.operations.engine import HOURS_PER_DAY
-from pondsim.operations.harvest import season_of_day
+from pondsim.operations.harvest import floor_of, season_of_day, washed_out
 
 
 def _attrs(name: str) -> dict:
@@ -38,6 +38,8 @@ def build_dataset(daily, drivers, hourly_sets, scenario, meta: dict, *,
     n_days = daily.density.shape[1]
     depth = scenario.pond.depth_m
     eff = scenario.harvest.recovery_efficiency
+    washout_days = scenario.harvest.washout_days
+    floor = floor_of(scenario)
 
     def cube(a):
         return a.reshape(n_pol, members, n_days)
@@ -93,6 +95,13 @@ def build_dataset(daily, drivers, hourly_sets, scenario, meta: dict, *,
                 **_attrs("status"),
                 "flag_values": "0 1 2",
                 "flag_meanings": "growing restarting_after_crash not_yet_inoculated"}),
+            "at_floor": (dims3, cube(daily.at_floor).astype(np.int8), {
+                "long_name": "culture at its viable-density floor at the harvest hour "
+                             "(below it, or the harvest cut back to it)", "units": "1"}),
+            "washed_out": (dims3, cube(washed_out(daily.at_floor, washout_days))
+                           .astype(np.int8), {
+                "long_name": "culture washed out: at its floor on more than washout_days "
+                             "days in a row up to this day", "units": "1"}),
             "carrying_capacity": (k_dims, k_values, _attrs("carrying_capacity")),
             "water_temperature": forcing_var("water_temperature", "water_temperature",
                                              "mean"),
@@ -146,6 +155,8 @@ def build_dataset(daily, drivers, hourly_sets, scenario, meta: dict, *,
         "replicates": reps,
         "photons_per_joule_umol": float(hourly.attrs.get("photons_per_joule_umol", np.nan)),
         "recovery_efficiency": eff,
+        "floor_g_m3": float(floor),
+        "washout_days": int(washout_days),
     }
     crash = scenario.crash
     if crash is not None:

@@ -22,7 +22,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from pondsim.operations.harvest import HarvestRules, removal_fraction
+from pondsim.operations.harvest import HarvestRules, cut_back_to_floor, removal_fraction
 from pondsim.pond import kinetics
 
 HOURS_PER_DAY = 24
@@ -100,6 +100,11 @@ class Operation:
     max_fraction : float [-]
         Daily harvest capacity as a share of pond volume.
     min_density_g_m3 : float [g m-3]
+        Below this density nothing is harvested.
+    floor_g_m3 : float [g m-3]
+        Viable-density floor: no harvest leaves the culture below it (0: none; the
+        scenario's default is the inoculation density, see
+        :func:`pondsim.operations.simulate.operation_of`).
     sample_hour : int, optional [h]
         Also record the density at the start of this local hour each day (after that
         hour's harvest), as a pilot pond's daily sample would see it.
@@ -113,6 +118,7 @@ class Operation:
     max_fraction: float = 1.0
     min_density_g_m3: float = 0.0
     sample_hour: int | None = None
+    floor_g_m3: float = 0.0
 
 
 @dataclass
@@ -124,7 +130,9 @@ class Daily:
     the volume; growth_rate [d-1] mean net specific rate; lost [g m-3] biomass lost to
     crashes; crashed (bool); hazard [d-1] crash hazard at the end of the day; status
     (0 growing, 1 restarting after a crash, 2 not yet inoculated); sampled [g m-3]
-    density at ``Operation.sample_hour`` (None unless asked). ``ledger`` holds the
+    density at ``Operation.sample_hour`` (None unless asked); at_floor (bool) the culture
+    was at its viable floor at the harvest hour (see
+    :func:`pondsim.operations.harvest.cut_back_to_floor`). ``ledger`` holds the
     per-member totals [g m-3]: inoculated, grown, respired, removed, lost, final;
     ``grown`` and ``respired`` [g m-3] are the same two terms per day (gross growth and
     maintenance respiration of the day, as booked in the ledger).
@@ -140,6 +148,7 @@ class Daily:
     status: np.ndarray
     ledger: dict
     sampled: np.ndarray | None = None
+    at_floor: np.ndarray | None = None
     grown: np.ndarray | None = None
     respired: np.ndarray | None = None
 
@@ -326,6 +335,7 @@ def integrate(drivers: Drivers, rules: HarvestRules, operation: Operation, *,
         hazard=np.zeros((n, n_days), dtype=np.float32),
         status=np.zeros((n, n_days), dtype=np.int8), ledger=totals,
         sampled=None if op.sample_hour is None else np.zeros((n, n_days)),
+        at_floor=np.zeros((n, n_days), dtype=bool),
         grown=np.zeros((n, n_days)), respired=np.zeros((n, n_days)),
     )
     if crash is not None:
@@ -354,7 +364,10 @@ def integrate(drivers: Drivers, rules: HarvestRules, operation: Operation, *,
                 frac, scheduled = removal_fraction(
                     rules, day, x, since, min_density_g_m3=op.min_density_g_m3,
                     max_fraction=op.max_fraction)
-                frac = np.where(status == STATUS_GROWING, frac, 0.0)
+                frac, at_floor = cut_back_to_floor(frac, x, op.floor_g_m3)
+                growing = status == STATUS_GROWING
+                frac = np.where(growing, frac, 0.0)
+                out.at_floor[:, day] = at_floor & growing
                 taken = frac * x
                 x = x - taken
                 totals["removed"] += taken

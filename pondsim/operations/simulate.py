@@ -12,7 +12,7 @@ from pondsim.errors import InputError
 from pondsim.operations.crash import CrashModel
 from pondsim.operations.dataset import build_dataset
 from pondsim.operations.engine import HOURS_PER_DAY, Drivers, Operation, integrate
-from pondsim.operations.harvest import build_rules
+from pondsim.operations.harvest import build_rules, floor_of
 from pondsim.pond import capacity, kinetics, light, thermal
 from pondsim.scenario import Scenario
 
@@ -188,7 +188,8 @@ def operation_of(scenario: Scenario) -> Operation:
     return Operation(start_day=start, inoculum_g_m3=ino.density_g_m3,
                      restart_days=ino.restart_days, harvest_hour=h.hour,
                      recovery_efficiency=h.recovery_efficiency, max_fraction=max_fraction,
-                     min_density_g_m3=h.min_density_g_m3)
+                     min_density_g_m3=h.min_density_g_m3, floor_g_m3=floor_of(scenario))
+
 
 
 def simulate(scenario: Scenario, members: int | None = None, seed: int | None = None,

@@ -22,9 +22,12 @@ MAX_SOLAR_EFFICIENCY = 0.046
 def policy_summary(ds: xr.Dataset) -> pd.DataFrame:
     """One row per policy: annual and monthly yield, harvests, density and efficiency.
 
-    Member means. Photosynthetic efficiency is the energy of the harvested biomass
-    (:data:`BIOMASS_ENERGY_KJ_G`) over the incident PAR (converted with the photon
-    conversion used by the light stage) and over total solar (GHI).
+    Member means. ``washed_out_pct``: share of members whose culture was held at its
+    viable floor on more than ``washout_days`` days in a row at least once [%];
+    ``days_at_floor``: mean days at the floor in the year. Photosynthetic efficiency is
+    the energy of the harvested biomass (:data:`BIOMASS_ENERGY_KJ_G`) over the incident
+    PAR (converted with the photon conversion used by the light stage) and over total
+    solar (GHI).
     """
     n_days = ds.sizes["day"]
     harvested = ds["harvested"]  # g m-2 d-1
@@ -52,11 +55,22 @@ def policy_summary(ds: xr.Dataset) -> pd.DataFrame:
             "efficiency_par_pct": 100 * e * 1e3 / par_j if par_j > 0 else np.nan,
             "efficiency_solar_pct": 100 * eff_solar,
             "plausible": bool(not eff_solar > MAX_SOLAR_EFFICIENCY),
+            **_washout_columns(ds, p),
         }
         for m in monthly["month"].values:
             row[f"m{int(m):02d}_g_m2"] = float(monthly.sel(policy=p, month=m))
         rows.append(row)
     return pd.DataFrame(rows).set_index("policy")
+
+
+def _washout_columns(ds: xr.Dataset, policy) -> dict:
+    """Share of members washed out at least once in the year [%] and mean days at the
+    viable floor [d per year] (NaN for results written before the floor existed)."""
+    if "washed_out" not in ds:
+        return {"washed_out_pct": np.nan, "days_at_floor": np.nan}
+    washed = ds["washed_out"].sel(policy=policy).max("day") > 0
+    return {"washed_out_pct": 100.0 * float(washed.mean()),
+            "days_at_floor": float(ds["at_floor"].sel(policy=policy).sum("day").mean())}
 
 
 def monthly_forcing_table(forcing: pd.DataFrame, par, water: pd.DataFrame,

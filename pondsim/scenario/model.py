@@ -94,6 +94,10 @@ class Harvest:
     recovery_efficiency: float
     capacity_m3_per_d: float | None
     min_density_g_m3: float
+    floor_g_m3: float | None = None
+    washout_days: int = 7
+    dewatering_capacity_m3_per_d: float | None = None
+    dewatering_cost_kg_per_m3: float = 0.0
 
 
 @dataclass(frozen=True)

@@ -149,6 +149,30 @@ SCHEMA: dict[str, dict[str, Key]] = {
                                  "harvest per day.", "m3 d-1", 0.0, 1e6, open_low=True),
         "min_density_g_m3": Key("float", 0.0, "Below this density nothing is harvested.",
                                 "g m-3", 0.0, 20000.0),
+        "floor_g_m3": Key("float", None, "Viable-density floor: no harvest leaves the "
+                          "culture below it (the harvest is cut back to it). Default: the "
+                          "inoculation density, so the culture left after a harvest can "
+                          "always restart growth as a fresh pond would (common practice: "
+                          "semi-continuous ponds keep a residual culture as their own "
+                          "inoculum). 0 lets rules run as written.", "g m-3", 0.0, 20000.0),
+        "washout_days": Key("int", 7, "A member whose culture stays at or below the floor "
+                            "(below it at the harvest hour, or its harvest cut back to it) "
+                            "on more than this many days in a row is flagged as washed "
+                            "out: the rule dilutes faster than the culture grows, or "
+                            "the culture cannot grow there. ASSUMPTION (a week: one "
+                            "operating review).", "d", 1, 365),
+        "dewatering_capacity_m3_per_d": Key("float", None, "Culture volume the whole "
+                                            "farm's dewatering can process per day (all "
+                                            "ponds together); `pondsim tune` keeps the "
+                                            "farm's harvest volume within it (highest "
+                                            "7-day mean, member mean; ponds staggered). "
+                                            "Default: no limit.", "m3 d-1", 0.0, 1e8,
+                                            open_low=True),
+        "dewatering_cost_kg_per_m3": Key("float", 0.0, "Cost of processing one m3 of "
+                                         "harvested culture, as the biomass whose sale "
+                                         "pays for it (cost per m3 / price per kg AFDW). "
+                                         "Above 0, `pondsim tune` maximises net product "
+                                         "= biomass - cost x volume.", "kg m-3", 0.0, 1000.0),
     },
     "crash": {
         "enabled": Key("bool", True, "Draw culture crashes (false: deterministic runs)."),
