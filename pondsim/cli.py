@@ -98,7 +98,7 @@ def _parser() -> argparse.ArgumentParser:
                    help="output folder (default: out/<scenario name>-tune)")
 
     from pondsim.report.build import add_report_parser
-    from pondsim.studies.calibrate import add_fit_parser
+    from pondsim.studies.fit_command import add_fit_parser
     from pondsim.studies.screen import add_screen_parser
 
     add_fit_parser(sub)
@@ -129,7 +129,7 @@ def main(argv: list[str] | None = None) -> int:
 
 
 def cmd_fit(args) -> int:
-    from pondsim.studies.calibrate import cmd_fit as run_fit
+    from pondsim.studies.fit_command import cmd_fit as run_fit
 
     return run_fit(args)
 
