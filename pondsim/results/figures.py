@@ -14,10 +14,15 @@ import numpy as np  # noqa: E402
 import pandas as pd  # noqa: E402
 
 from pondsim.glossary import CAUTION, G_M2_TO_T_HA  # noqa: E402
+from pondsim.operations.crash import CAUSES  # noqa: E402
+from pondsim.pond.capacity import trailing_mean  # noqa: E402
+from pondsim.results.crashes import crashes_by_cause  # noqa: E402
 from pondsim.results.files import atomic_write  # noqa: E402
 
 STYLES = ["-", "--", "-.", ":"]
 COLORS = ["#1b4f72", "#b9770e", "#1e8449", "#7d3c98", "#a93226", "#5d6d7e"]
+#: One colour per crash cause (order of pondsim.operations.crash.CAUSES); Okabe-Ito.
+CAUSE_COLORS = ["#0072B2", "#999999", "#D55E00", "#56B4E9"]
 
 FLUX_LABELS = {
     "q_shortwave": "absorbed solar",
@@ -179,13 +184,16 @@ def compare_figures(ds, table, crash, out_dir) -> list[Path]:
     dates = pd.to_datetime(ds["date"].values)
     pols = list(ds["policy"].values)
     written = []
-    k_smooth = crash.smoothed(ds["carrying_capacity"].values)
+    k_daily = ds["carrying_capacity"]
+    if "member" in k_daily.dims:
+        k_daily = k_daily.median("member")
+    k_smooth = trailing_mean(k_daily.values, crash.window_days)
 
     fig, axes = plt.subplots(len(pols), 1, figsize=(11, 2.4 * len(pols) + 1), sharex=True,
                              constrained_layout=True, squeeze=False)
     for i, (ax, p) in enumerate(zip(axes[:, 0], pols, strict=True)):
         dens = ds["density"].sel(policy=p)
-        ax.plot(dates, ds["carrying_capacity"], color="0.6", lw=0.8, label="K (daily)")
+        ax.plot(dates, k_daily, color="0.6", lw=0.8, label="K (daily)")
         ax.plot(dates, k_smooth, color="k", lw=1.2, label=f"K, {crash.window_days}-day mean")
         ax.fill_between(dates, dens.quantile(0.1, "member"), dens.quantile(0.9, "member"),
                         color=COLORS[i % len(COLORS)], alpha=0.25, label="P10–P90 members")
@@ -228,14 +236,27 @@ def compare_figures(ds, table, crash, out_dir) -> list[Path]:
     ax.grid(axis="y", alpha=0.3)
     written.append(_save(fig, out_dir / "seasonal_yield.png"))
 
-    fig, (ax1, ax2) = plt.subplots(2, 1, figsize=(11, 6.5), sharex=True,
+    fig, (ax1, ax2) = plt.subplots(2, 1, figsize=(11, 7.5),
                                    constrained_layout=True,
                                    gridspec_kw={"height_ratios": [1, 1.2]})
-    drop = crash.drop_index(k_smooth)
-    ax1.plot(dates, 100 * (1 - np.exp(-np.maximum(drop, 0))), color="k", lw=1)
-    ax1.set_ylabel(f"fall of K over {crash.window_days} d [%]")
-    ax1.set_title("Crash-risk calendar: where K falls and how likely a crash is")
-    ax1.grid(alpha=0.3)
+    lead = pols[0]
+    by_cause = crashes_by_cause(ds).xs(str(lead), level="policy")
+    months = by_cause.index.to_numpy()
+    bottom = np.zeros(len(months))
+    for j, cause in enumerate(CAUSES):
+        v = by_cause[f"{cause}_crashes_per_pond"].to_numpy()
+        ax1.bar(months, v, 0.8, bottom=bottom, color=CAUSE_COLORS[j], label=cause,
+                edgecolor="white", hatch=["", "//", "..", "xx"][j])
+        bottom += v
+    ax1.set_xticks(range(1, 13), [pd.Timestamp(2001, m, 1).strftime("%b") for m in
+                                  range(1, 13)])
+    ax1.set_xlim(0.4, 12.6)
+    ax1.set_ylim(bottom=0)
+    ax1.set_ylabel("crashes per pond [month$^{-1}$]")
+    ax1.set_title(f"Crashes by cause and month, {lead} (member mean; weather: "
+                  f"{ds.attrs.get('weather_basis', 'not stated')})", fontsize=9)
+    ax1.legend(fontsize=8, ncol=4, loc="upper left", bbox_to_anchor=(0, -0.12))
+    ax1.grid(axis="y", alpha=0.3)
     prob = -np.expm1(-ds["hazard"].astype(float)).mean("member")  # daily crash probability
     img = ax2.imshow(100 * prob.values, aspect="auto", cmap="Greys", interpolation="nearest",
                      extent=[mdates_num(dates[0]), mdates_num(dates[-1]), len(pols) - 0.5,
@@ -248,6 +269,8 @@ def compare_figures(ds, table, crash, out_dir) -> list[Path]:
     ax2.xaxis.set_major_formatter(mdates.DateFormatter("%b"))
     cbar = fig.colorbar(img, ax=ax2, pad=0.01)
     cbar.set_label("daily crash probability [%] (member mean)")
+    ax2.set_title("Daily crash probability by policy", fontsize=9)
+    fig.suptitle(f"{ds.attrs['site']}: crash-risk calendar")
     written.append(_save(fig, out_dir / "risk_calendar.png"))
     return written
 

@@ -137,5 +137,18 @@ def run_outlook(scenario, *, n_years: int, n_draws: int | None = None, members: 
     years, meta = weather_years(scenario, n_years, seed)
     draws = sample_draws(scenario, n_draws or scenario.uncertainty.draws, seed)
     ds = simulate(scenario, members=members, seed=seed, forcing=(years[0], meta),
-                  weather_years=years, draws=draws or None, progress=progress)
+                  weather_years=years, draws=draws or None, progress=progress,
+                  weather_basis=years_basis(scenario, meta, len(years)))
     return ds, meta
+
+
+def years_basis(scenario, meta: dict, n_years: int) -> str:
+    """Plain words for the weather years of :func:`weather_years`: the file's real years,
+    or synthetic years resampled from the scenario's weather year."""
+    w = scenario.weather
+    name = w.path.name if w.source == "file" and w.path is not None else \
+        "clear-sky weather from monthly normals"
+    if any("real weather years" in str(n) for n in meta.get("notes", [])):
+        return f"{n_years} real weather years of {name}"
+    return (f"{n_years} synthetic weather years resampled from the scenario's weather "
+            f"year ({name})")
