@@ -217,6 +217,7 @@ def cmd_weather(args) -> int:
 def cmd_run(args) -> int:
     from pondsim.glossary import CAUTION
     from pondsim.operations.simulate import simulate
+    from pondsim.results.crashes import crashes_by_cause, print_crash_causes
     from pondsim.results.files import save, write_csv
     from pondsim.results.tables import policy_summary
     from pondsim.scenario import load_scenario
@@ -228,9 +229,11 @@ def cmd_run(args) -> int:
     ds = simulate(scenario, members=args.members, seed=args.seed)
     elapsed = time.perf_counter() - t0
     summary = policy_summary(ds)
+    causes = crashes_by_cause(ds)
     out.mkdir(parents=True, exist_ok=True)
     save(ds, out / "results.nc")
     write_csv(summary, out / "summary.csv")
+    write_csv(causes, out / "crashes_by_cause.csv")
     print(f"{scenario.study_name}: {ds.attrs['site']}, {scenario.year}, "
           f"{scenario.pond.count} x {scenario.pond.area_m2:,.0f} m2 ponds at "
           f"{scenario.pond.depth_m:g} m, strain {scenario.strain.name} "
@@ -242,6 +245,7 @@ def cmd_run(args) -> int:
     view = summary[cols].copy()
     view.columns = labels
     print(view.to_string(float_format=lambda v: f"{v:,.2f}"))
+    print_crash_causes(ds)
     farm_t = summary["yield_t_ha_yr"] * scenario.pond.farm_area_m2 / 1e4
     print("\nfarm biomass (t AFDW per year): "
           + ", ".join(f"{p}: {v:,.1f}" for p, v in farm_t.items()))
@@ -250,7 +254,7 @@ def cmd_run(args) -> int:
         print(f"WARNING: policy {p!r} converts more than 4.6 % of total solar radiation to "
               "biomass, above the published maximum for C3 photosynthesis (Zhu, Long & Ort "
               "2008); check the strain parameters.")
-    written = [out / "results.nc", out / "summary.csv"]
+    written = [out / "results.nc", out / "summary.csv", out / "crashes_by_cause.csv"]
     if not args.no_plots:
         from pondsim.results.figures import run_figures
 
@@ -267,6 +271,7 @@ def _check_members(n):
 def cmd_compare(args) -> int:
     from pondsim.glossary import CAUTION
     from pondsim.operations.simulate import crash_model_of, simulate
+    from pondsim.results.crashes import crashes_by_cause, print_crash_causes
     from pondsim.results.files import save, write_csv
     from pondsim.scenario import load_scenario
     from pondsim.studies.compare import best_by_season, risk_calendar, season_table
@@ -290,7 +295,8 @@ def cmd_compare(args) -> int:
     out.mkdir(parents=True, exist_ok=True)
     written = [save(ds, out / "results.nc"), write_csv(table, out / "comparison.csv"),
                write_csv(best, out / "best_by_season.csv"),
-               write_csv(calendar, out / "risk_calendar.csv", index=False)]
+               write_csv(calendar, out / "risk_calendar.csv", index=False),
+               write_csv(crashes_by_cause(ds), out / "crashes_by_cause.csv")]
     print(f"{scenario.study_name}: {len(ds['policy'])} policies/plans x {members} members, "
           f"{elapsed:.1f} s\n")
     view = table[["yield_t_ha", "yield_t_ha_p10", "yield_t_ha_p90", "productivity_g_m2_d",
@@ -299,6 +305,7 @@ def cmd_compare(args) -> int:
     view.columns = ["t/ha", "P10", "P90", "g/m2/d", "harvests", "m3/pond", "mean g/m3",
                     "E[crashes]", "P(crash)", "risk days", "lost g/m2"]
     print(view.to_string(float_format=lambda v: f"{v:,.2f}"))
+    print_crash_causes(ds)
     print(f"\nbest policy per season (risk limit: P(>= 1 crash) <= {limit:.0%} per season):")
     for season, r in best.iterrows():
         flag = "" if r["within_risk_limit"] else "  [no policy within the limit: least risky]"
@@ -311,7 +318,8 @@ def cmd_compare(args) -> int:
 
     written += compare_figures(ds, table, crash, out)
     print("\nwritten: " + ", ".join(str(p) for p in written))
-    print("\nCrash parameters are assumptions unless replaced by the site's own history.")
+    print(f"\nCrash hazard values: {scenario.crash.basis}. Fit them to the site's own pond log "
+          "with `pondsim hazardfit`.")
     print("\n" + CAUTION)
     return 0
 
@@ -324,6 +332,7 @@ def _check_count(value, flag, high=100000):
 
 def cmd_outlook(args) -> int:
     from pondsim.glossary import CAUTION
+    from pondsim.results.crashes import crashes_by_cause, print_crash_causes
     from pondsim.results.files import save, write_csv
     from pondsim.scenario import load_scenario
     from pondsim.studies.inputs_bill import bill_from_results
@@ -358,7 +367,8 @@ def cmd_outlook(args) -> int:
     out.mkdir(parents=True, exist_ok=True)
     written = [save(ds, out / "results.nc"), write_csv(annual, out / "annual_yield.csv"),
                write_csv(bands, out / "monthly_bands.csv"),
-               write_csv(bill, out / "inputs_bill.csv")]
+               write_csv(bill, out / "inputs_bill.csv"),
+               write_csv(crashes_by_cause(ds), out / "crashes_by_cause.csv")]
     if sens is not None:
         written.append(write_csv(sens, out / "sensitivity.csv"))
     print(f"{scenario.study_name}: {n_years} weather years x {n_draws} parameter draws x "
@@ -372,6 +382,7 @@ def cmd_outlook(args) -> int:
                     "g/m2/d", "crashes/yr"]
     print(view.to_string(float_format=lambda v: f"{v:,.2f}"))
     print(f"\n(P90 = annual yield exceeded in 90 % of years.) Highest P50: {best}")
+    print_crash_causes(ds)
     if sens is not None:
         print("\nSobol indices of annual yield (first order, total):")
         for name, r in sens.iterrows():
@@ -393,10 +404,11 @@ def cmd_outlook(args) -> int:
 def cmd_tune(args) -> int:
     from pondsim.glossary import CAUTION
     from pondsim.operations.simulate import simulate
+    from pondsim.results.crashes import crash_basis_line
     from pondsim.results.files import write_csv
     from pondsim.scenario import load_scenario, relocate_text
     from pondsim.studies.compare import best_by_season, season_table
-    from pondsim.studies.outlook import weather_years
+    from pondsim.studies.outlook import weather_years, years_basis
     from pondsim.studies.tune import describe, tune_scenario, tuned_scenario_text, write_text
 
     _check_count(args.years, "--years")
@@ -419,7 +431,8 @@ def cmd_tune(args) -> int:
     tuned = load_scenario(tuned_path)
     years, meta = weather_years(tuned, n_years, seed)
     ds = simulate(tuned, members=args.members, seed=seed + 1, forcing=(years[0], meta),
-                  weather_years=years, progress=False)
+                  weather_years=years, progress=False,
+                  weather_basis=years_basis(tuned, meta, len(years)))
     seasons = season_table(ds)
     limit = scenario.crash.max_season_probability
     best = best_by_season(seasons, limit)
@@ -438,6 +451,8 @@ def cmd_tune(args) -> int:
           + ", ".join(f"{p}: {float(annual.sel(policy=p)):.1f}" for p in ds["policy"].values))
     print("best per season on fresh draws: "
           + ", ".join(f"{s}: {r['best_policy']}" for s, r in best.iterrows()))
+    print(f"P(crash) while tuning: {n_years} synthetic weather years x {args.members} crash "
+          "replicates; on fresh draws: " + crash_basis_line(ds))
     print(f"\nrun it: pondsim compare {tuned_path}")
     print("written: " + ", ".join(str(p) for p in written))
     print("\n" + CAUTION)

@@ -205,7 +205,7 @@ class CrashModel:
         Whether the salvage counts as harvested product.
     """
 
-    background_per_d: float = 0.003
+    background_per_d: float = 0.002
     background_t_ref_c: float = 20.0
     background_q10: float = 2.0
     starvation_hazard_per_d: float = 0.02

@@ -148,8 +148,8 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "basis": Key("str", "assumption: pondsim defaults, not measured at this site",
                      "Where the hazard values come from (written by `pondsim hazardfit`; "
                      "printed beside every crash figure)."),
-        "background_per_d": Key("float", 0.003, "Background hazard (contamination, "
-                                "grazers) at background_t_ref_c: 0.003 is 24 % per 90-day "
+        "background_per_d": Key("float", 0.002, "Background hazard (contamination, "
+                                "grazers) at background_t_ref_c: 0.002 is 16 % per 90-day "
                                 "season. ASSUMPTION: fit it to the site's crash log "
                                 "(`pondsim hazardfit`).", "d-1", 0.0, 1.0),
         "background_t_ref_c": Key("float", 20.0, "Water temperature at which the background "

@@ -929,6 +929,9 @@ def cmd_screen(args) -> int:
     for _, r in report.failures.iterrows():
         print(f"FAILED {r['site']}: {r['error']}")
     print("\nP90 = annual yield exceeded in 90 % of weather years x crash replicates.")
+    print("crashes/yr = expected crashes per pond per year over the same synthetic weather "
+          "years x crash replicates of each site (not the scenario's single weather year); "
+          f"hazard values: {scenario.crash.basis}.")
     if report.dataset is not None and (report.dataset["weather_notes"].str.contains(
             "clear-sky mode")).any():
         print("Sites from monthly normals (clear-sky mode) have no day-to-day weather: "
