@@ -35,6 +35,37 @@ def load_forcing(scenario: Scenario):
     return _one_year(forcing, scenario), meta
 
 
+def load_forcing_for_year(scenario: Scenario, year: int, *, map_year: bool = False,
+                          what: str = "the observations"):
+    """Forcing of the scenario's weather for a calendar *year* of dated records (a pilot
+    or a pond log): ``(table, meta, notes)``.
+
+    A file of several real years must hold *year*. A typical-year file (TMY, or a file
+    marked typical) is placed into *year*, with a note. A file of ONE real year of
+    another calendar year would silently stand in for *year*: that raises
+    :class:`InputError` unless ``map_year`` is True, when it is used with a note that
+    says so.
+    """
+    year = int(year)
+    forcing, meta = load_forcing(scenario.replace(year=year))
+    notes = [str(n) for n in meta.get("notes", [])]
+    remapped = [n for n in notes if n.startswith("the file's one whole year")]
+    if remapped:
+        own = remapped[0].split("whole year ", 1)[1].split(" ", 1)[0]
+        if not map_year:
+            raise InputError(
+                f"{what} are dated {year}, but the weather file holds the real year {own} "
+                f"only: its weather would stand in for {year}'s days. Give weather that "
+                f"covers {year}, or accept the stand-in explicitly (--map-weather-year)",
+                path=scenario.weather.path, field="weather.path")
+        notes.append(f"weather of {own} used for {what} dated {year} (--map-weather-year): "
+                     "day-to-day weather of the record is not the site's actual weather")
+    elif meta.get("typical_year"):
+        notes.append(f"typical-year weather placed into {year} for {what}: the record's "
+                     "actual weather is not known to the fit")
+    return forcing, meta, notes
+
+
 def _given_forcing(forcing, scenario: Scenario) -> tuple[pd.DataFrame, dict]:
     """``(table, meta)`` from what a caller passed as ``forcing``: a forcing table
     (:func:`pondsim.read_weather`, metadata in its ``attrs``) or a ``(table, meta)`` pair."""

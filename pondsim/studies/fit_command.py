@@ -67,6 +67,9 @@ def add_fit_parser(subparsers) -> argparse.ArgumentParser:
                    "light_param_umol_m2_s, maintenance_per_d, k_biomass_m2_g or "
                    "capacity_g_m3, t_opt_c when the data bracket it; x0_g_m3 always); "
                    "allowed: " + ", ".join(PARAMETERS))
+    f.add_argument("--map-weather-year", action="store_true",
+                   help="accept a weather file of one real year of another calendar year "
+                   "as the pilot's weather (noted in the report)")
     f.add_argument("--sample-hour", type=int, default=None,
                    help="local hour of the samples (default: from the times)")
     f.add_argument("--time-unit", choices=("h", "d"), default="h",
@@ -143,7 +146,8 @@ def cmd_fit(args) -> int:
     if getattr(args, "fit", None):
         free = [s.strip() for s in args.fit.split(",") if s.strip()]
     fit = fit_pilot(obs, scenario, model=model, free=free,
-                    sample_hour=getattr(args, "sample_hour", None))
+                    sample_hour=getattr(args, "sample_hour", None),
+                    map_weather_year=bool(getattr(args, "map_weather_year", False)))
     text = fit.report()
     print(text)
     out.mkdir(parents=True, exist_ok=True)

@@ -105,18 +105,24 @@ GROWTH_FORMS = ("self_shading", "logistic")
 # --------------------------------------------------------------------------------------
 # The pilot model: observations + scenario forcing -> engine runs for many parameter sets
 # --------------------------------------------------------------------------------------
-def pilot_hourly(scenario, year: int | None = None) -> pd.DataFrame:
+def pilot_hourly(scenario, year: int | None = None, *, map_year: bool = False
+                 ) -> pd.DataFrame:
     """Hourly PAR and water temperature of the scenario's forcing for *year*.
 
-    Returns the table of :func:`pondsim.operations.simulate.hourly_light_and_water` with a naive
-    (local standard time) index.
+    Returns the table of :func:`pondsim.operations.simulate.hourly_light_and_water` with a
+    naive (local standard time) index; ``attrs["notes"]`` says how the weather was placed
+    into *year*. A weather file of one real year of another calendar year raises
+    :class:`InputError` unless ``map_year`` (see
+    :func:`pondsim.operations.simulate.load_forcing_for_year`).
     """
-    from pondsim.operations.simulate import hourly_light_and_water, load_forcing
+    from pondsim.operations.simulate import hourly_light_and_water, load_forcing_for_year
 
-    if year is not None and year != scenario.year:
-        scenario = scenario.replace(year=int(year))
-    forcing, _ = load_forcing(scenario)
+    year = scenario.year if year is None else int(year)
+    if year != scenario.year:
+        scenario = scenario.replace(year=year)
+    forcing, _, notes = load_forcing_for_year(scenario, year, map_year=map_year)
     hourly = hourly_light_and_water(forcing, scenario)
+    hourly.attrs["notes"] = notes
     idx = pd.DatetimeIndex(hourly.index)
     if idx.tz is not None:
         idx = idx.tz_localize(None)
@@ -453,7 +459,8 @@ def default_free(growth_form: str, temperature_range, scenario) -> list[str]:
 
 def fit_pilot(observations: Observations, scenario, *, model: str | None = None,
               free=None, hourly: pd.DataFrame | None = None, start: dict | None = None,
-              sample_hour: int | None = None, max_nfev: int = 60) -> PilotFit:
+              sample_hour: int | None = None, max_nfev: int = 60,
+              map_weather_year: bool = False) -> PilotFit:
     """Fit growth parameters to pilot observations through the engine.
 
     Parameters
@@ -476,6 +483,9 @@ def fit_pilot(observations: Observations, scenario, *, model: str | None = None,
         Local hour of the samples.
     max_nfev : int
         Most function evaluations of the solver.
+    map_weather_year : bool
+        Accept a weather file of one real year of another calendar year as the pilot's
+        weather (noted in the report); without it that raises :class:`InputError`.
 
     Returns
     -------
@@ -493,7 +503,8 @@ def fit_pilot(observations: Observations, scenario, *, model: str | None = None,
                          f"allowed: {', '.join(GROWTH_FORMS)}", field="--model")
     obs = observations
     if hourly is None:
-        hourly = pilot_hourly(scenario, year=int(obs.time[0].year))
+        hourly = pilot_hourly(scenario, year=int(obs.time[0].year),
+                              map_year=map_weather_year)
     probe = PilotModel(obs, scenario, hourly, form, (), sample_hour=sample_hour)
     if free is None:
         free = default_free(form, probe.temperature_range, scenario)
@@ -514,6 +525,7 @@ def fit_pilot(observations: Observations, scenario, *, model: str | None = None,
                          f"({', '.join(free)}); need at least {p + 2}", path=obs.path,
                          field="density")
     pm = PilotModel(obs, scenario, hourly, form, free, sample_hour=probe.sample_hour)
+    pm.notes.extend(hourly.attrs.get("notes", []))
     warnings = []
     lo_t, hi_t = pm.temperature_range
     if "t_opt_c" in free and not lo_t < scenario.strain.t_opt_c < hi_t:
