@@ -98,10 +98,12 @@ def _parser() -> argparse.ArgumentParser:
                    help="output folder (default: out/<scenario name>-tune)")
 
     from pondsim.report.build import add_report_parser
+    from pondsim.studies.crash_fit_command import add_hazardfit_parser
     from pondsim.studies.fit_command import add_fit_parser
     from pondsim.studies.screen import add_screen_parser
 
     add_fit_parser(sub)
+    add_hazardfit_parser(sub)
     add_screen_parser(sub)
     add_report_parser(sub)
 
@@ -115,6 +117,7 @@ def main(argv: list[str] | None = None) -> int:
     try:
         commands = {"weather": cmd_weather, "run": cmd_run, "compare": cmd_compare,
                     "outlook": cmd_outlook, "tune": cmd_tune, "fit": cmd_fit,
+                    "hazardfit": cmd_hazardfit,
                     "screen": cmd_screen, "report": cmd_report, "keys": cmd_keys}
         return commands[args.command](args)
     except InputError as err:
@@ -132,6 +135,12 @@ def cmd_fit(args) -> int:
     from pondsim.studies.fit_command import cmd_fit as run_fit
 
     return run_fit(args)
+
+
+def cmd_hazardfit(args) -> int:
+    from pondsim.studies.crash_fit_command import cmd_hazardfit as run_hazardfit
+
+    return run_hazardfit(args)
 
 
 def cmd_screen(args) -> int:
