@@ -211,11 +211,14 @@ def _period_rules(log, scenario, policy, dates, start, notes) -> HarvestRules:
 # --------------------------------------------------------------------------------------
 @dataclass(frozen=True)
 class _Days:
-    """Pond-days at risk as flat arrays: survived days' covariate sums and the crash
-    days' covariates (the likelihood needs no more)."""
+    """Pond-days at risk reduced to what the likelihood needs: the crash days'
+    covariates, and for survived days the sums of L/L_ref, H, C plus the count of days
+    at each distinct water-temperature anomaly (ponds share the calendar's weather, so
+    the background term Σ n_k e^{a + β u_k} has far fewer terms than pond-days; exact)."""
 
     z_event: np.ndarray  # (4, n_crashes)
-    z_survived: np.ndarray  # (4, n_survived)
+    anomaly_k: np.ndarray  # (n_levels,) distinct T̄ - T_ref of survived days [K]
+    count: np.ndarray  # (n_levels,) survived days at each level
     sums: np.ndarray  # (3,) sums of L/L_ref, H, C over survived days
 
     @classmethod
@@ -224,7 +227,9 @@ class _Days:
         risk, event = data.at_risk, data.event
         survived = risk & ~event
         zs = z[:, survived]
-        return cls(z_event=z[:, event], z_survived=zs, sums=zs[1:].sum(axis=1))
+        levels, count = np.unique(zs[0], return_counts=True)
+        return cls(z_event=z[:, event], anomaly_k=levels, count=count.astype(float),
+                   sums=zs[1:].sum(axis=1))
 
 
 def neg_log_likelihood(theta, data, *, grad: bool = False):
@@ -235,7 +240,7 @@ def neg_log_likelihood(theta, data, *, grad: bool = False):
     """
     days = data if isinstance(data, _Days) else _Days.of(data)
     theta = np.asarray(theta, dtype=float)
-    bg_s = np.exp(theta[0] + theta[1] * days.z_survived[0])
+    bg_s = days.count * np.exp(theta[0] + theta[1] * days.anomaly_k)
     ze = days.z_event
     bg_e = np.exp(theta[0] + theta[1] * ze[0])
     h_e = np.maximum(bg_e + theta[2] * ze[1] + theta[3] * ze[2] + theta[4] * ze[3], 1e-300)
@@ -244,7 +249,7 @@ def neg_log_likelihood(theta, data, *, grad: bool = False):
         return nll
     w_e = -1.0 / np.expm1(h_e)
     g = np.array([bg_s.sum() + (w_e * bg_e).sum(),
-                  (bg_s * days.z_survived[0]).sum() + (w_e * bg_e * ze[0]).sum(),
+                  (bg_s * days.anomaly_k).sum() + (w_e * bg_e * ze[0]).sum(),
                   *(days.sums + (w_e * ze[1:]).sum(axis=1))])
     return nll, g
 

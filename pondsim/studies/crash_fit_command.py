@@ -118,7 +118,7 @@ def hazard_scenario_text(fit: HazardFit, scenario, scenario_path, out_path, *,
              f"{fit.n_crashes} crashes, {fit.pond_days} pond-days; {stamp}): "
              + ", ".join(fitted) + "; weather terms vs background only: p = "
              f"{fit.lr_p_value:.2g}")
-    updates = {"crash": {**values, "basis": basis, "enabled": True}}
+    updates = {"crash": {**values, "basis": basis}}
     header = [f"# Copy of {Path(scenario_path).name} with [crash] fitted by `pondsim "
               f"hazardfit` to {log_name} ({stamp}).",
               "# 95 % profile-likelihood intervals:"]
@@ -127,8 +127,11 @@ def hazard_scenario_text(fit: HazardFit, scenario, scenario_path, out_path, *,
             header.append(f"#   {k} = {r['estimate']:.4g} [{r['ci95_low']:.4g}, "
                           f"{r['ci95_high']:.4g}] {r['unit']}")
         else:
-            header.append(f"#   {k} = {r['estimate']:.4g} {r['unit']} ({r['status']})")
-    new_text = "\n".join(header) + "\n" + edit_toml(text, updates)
+            header.append(f"#   {k} = {r['estimate']:.4g} {r['unit']} (not estimated: "
+                          "the scenario's value)")
+    header.append("# The [crash] values below replace the scenario's; crash.basis says where "
+                  "they came from.")
+    new_text = "\n".join(header) + "\n" + edit_toml(text, updates, keep_comments=False)
     check = parse_scenario(tomllib.loads(new_text), out_path)
     for k, v in values.items():
         if not math.isclose(getattr(check.crash, k), v, rel_tol=1e-9):

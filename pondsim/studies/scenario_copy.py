@@ -18,7 +18,7 @@ def toml_value(value) -> str:
     return f"{float(value):.6g}" if not float(value).is_integer() else f"{float(value):.1f}"
 
 
-def edit_toml(text: str, updates: dict[str, dict]) -> str:
+def edit_toml(text: str, updates: dict[str, dict], *, keep_comments: bool = True) -> str:
     """Set ``key = value`` in ``[section]`` tables of TOML text, keeping comments and
     layout; keys absent from their section are added at its end, a value of None removes
     the key. Values may be numbers, text, lists or flat dicts (inline tables)."""
@@ -62,7 +62,8 @@ def edit_toml(text: str, updates: dict[str, dict]) -> str:
             if (sec, key) in found:
                 start, end = found[(sec, key)]
                 comment = ""
-                if start == end and "#" in lines[start] and not isinstance(value, dict):
+                if keep_comments and start == end and "#" in lines[start] \
+                        and not isinstance(value, dict):
                     val_part = lines[start].split("=", 1)[1]
                     if val_part.count('"') % 2 == 0 and "#" in val_part:
                         comment = "  # " + val_part.split("#", 1)[1].strip()
