@@ -18,7 +18,8 @@ A *period* runs from an ``inoculated`` row to the pond's next ``crash`` row (the
 crashed that day) or ``end`` row (the culture was stopped for another reason, or the log
 stops: the period is *censored* that day). Harvests and samples of a pond must fall inside
 one of its periods. Rows may come in any order; each pond's events are taken in date
-order. Any problem raises :class:`~pondsim.errors.InputError` naming the file, the row
+order, and events of one day in the order of the file (inoculated, then harvests and
+samples, then crash or end). Any problem raises :class:`~pondsim.errors.InputError` naming the file, the row
 (1-based, the header being row 1, comment lines not counted) and the field.
 """
 
@@ -133,10 +134,8 @@ def parse_pond_log(frame: pd.DataFrame, *, path=None) -> PondLog:
 
     table = pd.DataFrame({"pond": pond, "date": dates, "event": event, "value": value,
                           "row": rows})
-    # Events of one day in their natural order: inoculated, harvest/sample, crash/end.
-    rank = {"inoculated": 0, "harvest": 1, "sample": 1, "crash": 2, "end": 2}
-    table["rank"] = table["event"].map(rank)
-    table = table.sort_values(["pond", "date", "rank", "row"], kind="stable")
+    # Each pond's events by date; events of one day in the order of the file.
+    table = table.sort_values(["pond", "date", "row"], kind="stable")
     periods, harvests, samples = [], [], []
     for pond_id, events in table.groupby("pond", sort=False):
         open_start = None
