@@ -11,7 +11,6 @@ Outside references:
 
 from __future__ import annotations
 
-
 import numpy as np
 import pytest
 from engine_cases import OPERATION, diurnal_par, diurnal_temp_factor, drivers, rules

@@ -47,6 +47,7 @@ from pondsim.errors import InputError
 from pondsim.operations.crash import STARVATION_LOSS_REF_PER_D, CrashModel, trailing_net_loss
 from pondsim.operations.engine import HOURS_PER_DAY, crash_stress, integrate
 from pondsim.operations.harvest import RULE_CODES, HarvestRules, rules_from_entries
+from pondsim.studies.fit_statistics import interval_covers
 
 #: Parameters of the fit, in order: (name, unit, meaning, scenario key, lower, upper)
 #: on the fit's own scale (a = ln b, β = ln(q10)/10); bounds follow the scenario schema.
@@ -310,9 +311,7 @@ class HazardFit:
 
     def covers(self, truth: dict) -> dict:
         """For each true value (scenario keys), whether the 95 % interval holds it."""
-        t = self.table
-        return {k: bool(t.at[k, "ci95_low"] <= v <= t.at[k, "ci95_high"])
-                for k, v in truth.items() if k in t.index}
+        return interval_covers(self.table, truth)
 
 
 def _to_scenario(name, value):

@@ -19,8 +19,9 @@ crashed that day) or ``end`` row (the culture was stopped for another reason, or
 stops: the period is *censored* that day). Harvests and samples of a pond must fall inside
 one of its periods. Rows may come in any order; each pond's events are taken in date
 order, and events of one day in the order of the file (inoculated, then harvests and
-samples, then crash or end). Any problem raises :class:`~pondsim.errors.InputError` naming the file, the row
-(1-based, the header being row 1, comment lines not counted) and the field.
+samples, then crash or end). Any problem raises :class:`~pondsim.errors.InputError`
+naming the file, the row (1-based, the header being row 1, comment lines not counted) and
+the field.
 """
 
 from __future__ import annotations

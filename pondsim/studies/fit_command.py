@@ -15,6 +15,7 @@ from pondsim.studies.fit_observations import (
     FIELDS,
     parse_column_map,
     parse_observations,
+    read_csv_checked,
     read_observations,
 )
 from pondsim.studies.fit_outputs import (
@@ -82,12 +83,7 @@ def _cmd_curve(args, out: Path) -> int:
     from pondsim.results.files import atomic_write
 
     path = Path(args.observations)
-    if not path.is_file():
-        raise InputError("observations file not found", path=path)
-    try:
-        frame = pd.read_csv(path, comment="#", skipinitialspace=True)
-    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as err:
-        raise InputError(f"not a readable CSV file: {err}", path=path) from None
+    frame = read_csv_checked(path)
     cols = parse_column_map(getattr(args, "columns", None))
     unit = getattr(args, "time_unit", None) or "h"
     tcol = cols.get("time", "time")

@@ -66,6 +66,7 @@ from pondsim.studies.fit_observations import Observations
 from pondsim.studies.fit_statistics import (
     correlation_matrix,
     identifiability_warnings,
+    interval_covers,
     ls_covariance,
     parameter_table,
     residual_diagnostics,
@@ -403,9 +404,7 @@ class PilotFit:
 
     def covers(self, truth: dict) -> dict:
         """For each true value given, whether it lies within the 95 % interval."""
-        t = self.table
-        return {k: bool(t.at[k, "ci95_low"] <= v <= t.at[k, "ci95_high"])
-                for k, v in truth.items() if k in t.index}
+        return interval_covers(self.table, truth)
 
     def report(self) -> str:
         """Plain-text report: estimates, correlations, diagnostics, warnings."""

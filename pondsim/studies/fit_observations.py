@@ -159,15 +159,21 @@ def read_observations(path, *, columns: dict | None = None, density_unit: str | 
         zero densities, unknown units, out-of-range harvests or forcing readings.
     """
     path = Path(path)
-    if not path.is_file():
-        raise InputError("observations file not found", path=path)
-    try:
-        frame = pd.read_csv(path, comment="#", skipinitialspace=True)
-    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as err:
-        raise InputError(f"not a readable CSV file: {err}", path=path) from None
+    frame = read_csv_checked(path)
     return parse_observations(frame, path=path, columns=columns, density_unit=density_unit,
                               od_factor_g_l=od_factor_g_l, par_unit=par_unit,
                               pond_volume_m3=pond_volume_m3)
+
+
+def read_csv_checked(path: Path, what: str = "observations file") -> pd.DataFrame:
+    """The CSV table at *path* (``#`` comment lines skipped), or one clear
+    :class:`InputError` for a missing or unreadable file."""
+    if not path.is_file():
+        raise InputError(f"{what} not found", path=path)
+    try:
+        return pd.read_csv(path, comment="#", skipinitialspace=True)
+    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as err:
+        raise InputError(f"not a readable CSV file: {err}", path=path) from None
 
 
 def _numeric(frame, col, path, allow_missing=True) -> np.ndarray:

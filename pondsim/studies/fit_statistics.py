@@ -19,6 +19,13 @@ MAX_ABS_CORRELATION = 0.95
 # --------------------------------------------------------------------------------------
 # Statistics shared by both fits
 # --------------------------------------------------------------------------------------
+def interval_covers(table, truth: dict) -> dict:
+    """For each true value given (by row name of *table*), whether it lies within the
+    table's 95 % interval (columns ``ci95_low``, ``ci95_high``)."""
+    return {k: bool(table.at[k, "ci95_low"] <= v <= table.at[k, "ci95_high"])
+            for k, v in truth.items() if k in table.index}
+
+
 def ls_covariance(jac, resid, n_params):
     """(s2, cov, condition number) from the Jacobian of the residuals at the optimum."""
     n = len(resid)
