@@ -251,7 +251,7 @@ def compare_figures(ds, table, crash, out_dir) -> list[Path]:
     ax1.set_xticks(range(1, 13), [pd.Timestamp(2001, m, 1).strftime("%b") for m in
                                   range(1, 13)])
     ax1.set_xlim(0.4, 12.6)
-    ax1.set_ylim(bottom=0)
+    ax1.set_ylim(0, max(float(bottom.max()) * 1.15, 1e-3))
     ax1.set_ylabel("crashes per pond [month$^{-1}$]")
     ax1.set_title(f"Crashes by cause and month, {lead} (member mean; weather: "
                   f"{ds.attrs.get('weather_basis', 'not stated')})", fontsize=9)
