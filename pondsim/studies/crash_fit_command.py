@@ -246,13 +246,18 @@ def add_hazardfit_parser(subparsers) -> argparse.ArgumentParser:
 def cmd_hazardfit(args) -> int:
     """Run ``pondsim hazardfit`` (see :func:`add_hazardfit_parser`); 0 on success."""
     from pondsim.operations.simulate import crash_model_of
-    from pondsim.results.files import atomic_write, write_csv
+    from pondsim.results.files import (
+        OutputSet,
+        atomic_write,
+        check_output_folder,
+        clean_output_folder,
+        write_csv,
+    )
     from pondsim.scenario import load_scenario
 
     log_path = Path(args.log)
     out = Path(args.out) if args.out else Path("out") / f"{log_path.stem}_hazard"
-    if out.exists() and not out.is_dir():
-        raise InputError("output path exists and is not a folder", path=out, field="--out")
+    clean_output_folder(check_output_folder(out))  # before any computation
     scenario = load_scenario(args.scenario)
     log = read_pond_log(log_path)
     free = None if not args.fit else [s.strip() for s in args.fit.split(",") if s.strip()]
@@ -263,22 +268,24 @@ def cmd_hazardfit(args) -> int:
     fit = fit_hazard(data, base, free=free)
     text = hazard_report(fit, log, data, log_name=log_path.name,
                          t_ref_c=scenario.crash.background_t_ref_c)
-    # Everything is made and checked before the first file is written.
-    copy_path = out / f"{Path(args.scenario).stem}_hazard.toml"
-    copy_text = hazard_scenario_text(fit, scenario, args.scenario, copy_path,
+    # Everything is made and checked before the first file is written; the set of files
+    # lands whole (OutputSet) or not at all.
+    copy_name = f"{Path(args.scenario).stem}_hazard.toml"
+    copy_text = hazard_scenario_text(fit, scenario, args.scenario, out / copy_name,
                                      log_name=log_path.name)
     periods = period_table(log, data, fit, scenario.crash.background_t_ref_c)
     print(text)
-    out.mkdir(parents=True, exist_ok=True)
-    written = [
-        write_csv(fit.table, out / "hazard_parameters.csv"),
-        write_csv(periods, out / "hazard_periods.csv", index=False),
-        atomic_write(out / "hazard_report.txt",
-                     lambda tmp: Path(tmp).write_text(text + "\n", encoding="utf-8")),
-        atomic_write(copy_path,
-                     lambda tmp: Path(tmp).write_text(copy_text, encoding="utf-8")),
-    ]
-    print("\nwritten: " + ", ".join(str(p) for p in written))
+    with OutputSet(out, command="hazardfit", scenario=args.scenario,
+                   notes={"pond_log": str(log_path.resolve())}) as files:
+        written = [
+            write_csv(fit.table, files.dir / "hazard_parameters.csv"),
+            write_csv(periods, files.dir / "hazard_periods.csv", index=False),
+            atomic_write(files.dir / "hazard_report.txt",
+                         lambda tmp: Path(tmp).write_text(text + "\n", encoding="utf-8")),
+            atomic_write(files.dir / copy_name,
+                         lambda tmp: Path(tmp).write_text(copy_text, encoding="utf-8")),
+        ]
+    print("\nwritten: " + ", ".join(str(files.final(p)) for p in written))
     print("\nA fitted hazard describes this log's ponds, weather and operations; it is an "
           "estimate, not a guarantee. Results are estimates, not guarantees; defer to local "
           "codes, permits and licensed engineers.")
