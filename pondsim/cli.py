@@ -157,9 +157,11 @@ def _parser() -> argparse.ArgumentParser:
 
     from pondsim.report.build import add_report_parser
     from pondsim.studies.calibrate import add_fit_parser
+    from pondsim.studies.crash_fit_command import add_hazardfit_parser
     from pondsim.studies.screen import add_screen_parser
 
     add_fit_parser(sub)
+    add_hazardfit_parser(sub)
     add_screen_parser(sub)
     add_report_parser(sub)
 
@@ -188,6 +190,7 @@ def main(argv: list[str] | None = None) -> int:
     try:
         commands = {"weather": cmd_weather, "run": cmd_run, "compare": cmd_compare,
                     "outlook": cmd_outlook, "tune": cmd_tune, "fit": cmd_fit,
+                    "hazardfit": cmd_hazardfit,
                     "screen": cmd_screen, "report": cmd_report, "keys": cmd_keys}
         check_arguments(args)
         return commands[args.command](args)
@@ -258,6 +261,12 @@ def cmd_fit(args) -> int:
         _check_out_first(Path(args.out) if getattr(args, "out", None) else
                          Path("out") / f"{Path(args.observations).stem}_fit")
     return run_fit(args)
+
+
+def cmd_hazardfit(args) -> int:
+    from pondsim.studies.crash_fit_command import cmd_hazardfit as run_hazardfit
+
+    return run_hazardfit(args)
 
 
 def cmd_screen(args) -> int:
@@ -387,6 +396,7 @@ def _print_written(files, written) -> None:
 def cmd_run(args) -> int:
     from pondsim.glossary import CAUTION
     from pondsim.operations.simulate import simulate
+    from pondsim.results.crashes import crashes_by_cause, print_crash_causes
     from pondsim.results.files import save, write_csv
     from pondsim.results.tables import policy_summary
 
@@ -399,7 +409,8 @@ def cmd_run(args) -> int:
         summary = policy_summary(ds)
         files.notes["site_check"] = ds.attrs["site_check"]
         written = [save(ds, files.dir / "results.nc"),
-                   write_csv(summary, files.dir / "summary.csv")]
+                   write_csv(summary, files.dir / "summary.csv"),
+                   write_csv(crashes_by_cause(ds), files.dir / "crashes_by_cause.csv")]
         if not args.no_plots:
             from pondsim.results.figures import run_figures
 
@@ -425,6 +436,7 @@ def cmd_run(args) -> int:
           "out: members held at the viable floor "
           f"({ds.attrs['floor_g_m3']:g} g m-3) on more than {ds.attrs['washout_days']} "
           "days in a row)")
+    print_crash_causes(ds)
     farm_t = summary["yield_t_ha_yr"] * scenario.pond.farm_area_m2 / 1e4
     print("\nfarm biomass (t AFDW per year): "
           + ", ".join(f"{p}: {v:,.1f}" for p, v in farm_t.items()))
@@ -449,6 +461,7 @@ def cmd_compare(args) -> int:
 
     from pondsim.glossary import CAUTION
     from pondsim.operations.simulate import crash_model_of, load_forcing, simulate
+    from pondsim.results.crashes import crashes_by_cause, print_crash_causes
     from pondsim.results.files import save, write_csv
     from pondsim.studies.compare import (
         BAND_NOTE,
@@ -485,7 +498,8 @@ def cmd_compare(args) -> int:
                    write_csv(comparison_table(table), out / "comparison.csv"),
                    write_csv(best, out / "best_by_season.csv"),
                    write_csv(versus, out / "best_plan_vs_policies.csv"),
-                   write_csv(calendar, out / "risk_calendar.csv", index=False)]
+                   write_csv(calendar, out / "risk_calendar.csv", index=False),
+                   write_csv(crashes_by_cause(ds), out / "crashes_by_cause.csv")]
         from pondsim.results.figures import compare_figures
 
         written += compare_figures(ds, table, crash, out)
@@ -499,6 +513,7 @@ def cmd_compare(args) -> int:
                       for s in pd.unique(table.index.get_level_values('season')))
           + f". Washed out: held at the viable floor ({ds.attrs['floor_g_m3']:g} g m-3) on "
           f"more than {ds.attrs['washout_days']} days in a row.)")
+    print_crash_causes(ds)
     print(f"\nbest plan, each season judged on whole years (risk limit: P(>= 1 crash) <= "
           f"{limit:.0%} per season; no washout):")
     for season, r in best.iterrows():
@@ -520,13 +535,15 @@ def cmd_compare(args) -> int:
         print("\nsteepest falls of K (risk calendar, median member X/K):")
         print(calendar.to_string(index=False, float_format=lambda v: f"{v:,.2f}"))
     _print_written(files, written)
-    print("\nCrash parameters are assumptions unless replaced by the site's own history.")
+    print(f"\nCrash hazard values: {scenario.crash.basis}. Fit them to the site's own pond log "
+          "with `pondsim hazardfit`.")
     print("\n" + CAUTION)
     return 0
 
 
 def cmd_outlook(args) -> int:
     from pondsim.glossary import CAUTION
+    from pondsim.results.crashes import crashes_by_cause, print_crash_causes
     from pondsim.results.files import save, write_csv
     from pondsim.studies.bill import describe as describe_bill
     from pondsim.studies.bill import scenario_bill
@@ -571,7 +588,8 @@ def cmd_outlook(args) -> int:
         written = [save(ds, out / "results.nc"), write_csv(annual, out / "annual_yield.csv"),
                    write_csv(bands, out / "monthly_bands.csv"),
                    write_csv(bill.monthly, out / "inputs_bill.csv"),
-                   write_csv(bill.lines, out / "inputs_bill_lines.csv")]
+                   write_csv(bill.lines, out / "inputs_bill_lines.csv"),
+                   write_csv(crashes_by_cause(ds), out / "crashes_by_cause.csv")]
         if bill.cost_per_t is not None:
             written.append(write_csv(bill.cost_per_t, out / "inputs_cost_per_t.csv"))
         if meta.get("rounds"):
@@ -614,6 +632,7 @@ def cmd_outlook(args) -> int:
     print("  per hectare: " + "; ".join(headline(annual, best)))
     print(f"  farm of {scenario.pond.count} pond(s): "
           + "; ".join(headline(annual, best, farm=True)))
+    print_crash_causes(ds)
     if sens is not None:
         print("\nSobol indices of annual yield (first order, total; 95 % bootstrap interval):")
         for name, s in sens.iterrows():

@@ -96,11 +96,11 @@ def test_logistic_curve_derived_quantities_and_delta_method(carlson):
     # Schaefer (1954): the largest growth rate of the logistic is r K / 4, at N = K/2,
     # read here off the fitted curve itself by finite differences.
     tt = np.linspace(0, 18, 180001)
-    curve = cal._logistic(tt, r, k, n0)
+    curve = cal.logistic_curve(tt, r, k, n0)
     slope = np.gradient(curve, tt)
     assert slope.max() == pytest.approx(msy, rel=1e-6)
     assert tt[np.argmax(slope)] == pytest.approx(t_infl, abs=1e-3)
-    assert cal._logistic(t_infl, r, k, n0) == pytest.approx(k / 2, rel=1e-9)
+    assert cal.logistic_curve(t_infl, r, k, n0) == pytest.approx(k / 2, rel=1e-9)
     # Delta method against Monte Carlo propagation of the same parameter covariance.
     rng = np.random.default_rng(7)
     draws = rng.multivariate_normal([r, k, n0], fit.covariance[:3, :3], size=40000)
@@ -117,7 +117,7 @@ def test_logistic_curve_recovers_synthetic_truth():
     covered = 0
     reps = 200
     for _ in range(reps):
-        n = cal._logistic(t, true["r"], true["k"], true["n0"]) + rng.normal(0, 8.0, t.size)
+        n = cal.logistic_curve(t, true["r"], true["k"], true["n0"]) + rng.normal(0, 8.0, t.size)
         tab = cal.fit_logistic_curve(t, np.maximum(n, 1.0)).table
         covered += all(tab.at[name, "ci95_low"] <= v <= tab.at[name, "ci95_high"]
                        for name, v in (("r", 0.4), ("K", 800.0), ("N0", 15.0)))

@@ -34,14 +34,15 @@ def test_run_writes_results_with_units(run_dir):
     assert set(ds["density"].dims) == {"policy", "member", "day"}
     for name in ("density", "areal_biomass", "harvested", "carrying_capacity",
                  "growth_rate", "water_temperature", "par_daily", "evaporation", "crashed",
-                 "status"):
+                 "crash_cause", "salvaged", "status"):
         assert ds[name].attrs.get("units"), name
         assert ds[name].attrs.get("long_name"), name
     assert ds.sizes["day"] == 365
     assert "caution" in ds.attrs and "licensed engineers" in ds.attrs["caution"]
     # The ledger closes in areal units for every policy and member.
     balance = (ds["ledger_inoculated"] + ds["ledger_grown"] - ds["ledger_respired"]
-               - ds["ledger_removed"] - ds["ledger_lost"] - ds["ledger_final"])
+               - ds["ledger_removed"] - ds["ledger_salvaged"] - ds["ledger_lost"]
+               - ds["ledger_final"])
     assert float(np.abs(balance).max()) < 1e-6 * float(ds["ledger_grown"].max())
 
 

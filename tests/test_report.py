@@ -300,7 +300,7 @@ def test_every_parameter_with_unit_value_and_source(small_scenario, report_dir, 
     default = keyed[("pond", "water_emissivity")]
     assert default["source"] == "default"
     assert default["note"] == SCHEMA["pond"]["water_emissivity"].doc
-    assert "ASSUMPTION" in keyed[("crash", "overshoot_onset")]["note"]
+    assert "ASSUMPTION" in keyed[("crash", "background_per_d")]["note"]
     assert keyed[("option", "weather_years")]["value"] == "2"
     page = _parse(page_text)
     rows = [a for t, a in page.tags if t == "tr"]

@@ -11,6 +11,7 @@ import pandas as pd
 import xarray as xr
 
 from pondsim.glossary import CAUTION, RESULTS
+from pondsim.operations.crash import CAUSES
 from pondsim.operations.engine import HOURS_PER_DAY
 from pondsim.operations.harvest import floor_of, season_of_day, washed_out
 
@@ -21,15 +22,17 @@ def _attrs(name: str) -> dict:
 
 
 def build_dataset(daily, drivers, hourly_sets, scenario, meta: dict, *,
-                  policy_names, members: int, sets: tuple[int, int, int] | None = None
-                  ) -> xr.Dataset:
+                  policy_names, members: int, sets: tuple[int, int, int] | None = None,
+                  weather_basis: str | None = None) -> xr.Dataset:
     """Assemble engine output and forcing aggregates into the results Dataset.
 
     Engine arrays are policy-major over ``len(policy_names) * members`` rows; within a
     policy, members run over ``sets = (n_weather_years, n_draws, n_replicates)``, weather
     year slowest. Variables that depend only on the weather year (water temperature, PAR,
     evaporation, ...) have dims ``(day,)`` for one weather year and ``(member, day)``
-    otherwise; the carrying capacity likewise per driver set.
+    otherwise; the carrying capacity likewise per driver set. ``weather_basis`` says
+    which weather the run stands on (stored in the attributes and printed beside every
+    crash figure); default :func:`default_weather_basis`.
     """
     if isinstance(hourly_sets, pd.DataFrame):
         hourly_sets = [hourly_sets]
@@ -40,6 +43,10 @@ def build_dataset(daily, drivers, hourly_sets, scenario, meta: dict, *,
     eff = scenario.harvest.recovery_efficiency
     washout_days = scenario.harvest.washout_days
     floor = floor_of(scenario)
+    crash = scenario.crash
+    sellable = bool(crash is not None and crash.salvage_sellable)
+    salvaged = daily.salvaged if daily.salvaged is not None else np.zeros_like(daily.removed)
+    cause = daily.cause if daily.cause is not None else np.zeros_like(daily.status)
 
     def cube(a):
         return a.reshape(n_pol, members, n_days)
@@ -74,7 +81,12 @@ def build_dataset(daily, drivers, hourly_sets, scenario, meta: dict, *,
         {
             "density": (dims3, cube(daily.density), _attrs("density")),
             "areal_biomass": (dims3, cube(daily.density) * depth, _attrs("areal_biomass")),
-            "harvested": (dims3, cube(daily.removed) * depth * eff, _attrs("harvested")),
+            "harvested": (dims3, cube(daily.removed + (salvaged if sellable else 0.0))
+                          * depth * eff, {**_attrs("harvested"), "includes_salvage":
+                                          int(sellable)}),
+            "salvaged": (dims3, cube(salvaged) * depth, {
+                "long_name": "biomass left by crashes (salvage; product only where "
+                             "crash.salvage_sellable)", "units": "g m-2 d-1"}),
             "harvest_fraction": (dims3, cube(daily.harvest_fraction),
                                  {"long_name": "share of the culture volume harvested",
                                   "units": "1"}),
@@ -89,6 +101,10 @@ def build_dataset(daily, drivers, hourly_sets, scenario, meta: dict, *,
             "crash_loss": (dims3, cube(daily.lost) * depth,
                            {"long_name": "biomass lost to crashes", "units": "g m-2 d-1"}),
             "crashed": (dims3, cube(daily.crashed).astype(np.int8), _attrs("crashed")),
+            "crash_cause": (dims3, cube(cause).astype(np.int8), {
+                "long_name": "cause of the day's crash", "units": "1",
+                "flag_values": " ".join(str(i) for i in range(len(CAUSES) + 1)),
+                "flag_meanings": "no_crash " + " ".join(CAUSES)}),
             "hazard": (dims3, cube(daily.hazard),
                        {"long_name": "daily culture crash hazard", "units": "d-1"}),
             "status": (dims3, cube(daily.status), {
@@ -124,9 +140,10 @@ def build_dataset(daily, drivers, hourly_sets, scenario, meta: dict, *,
                 season_of_day(dates, scenario.seasons)]),
         },
     )
-    for name in ("inoculated", "grown", "respired", "removed", "lost", "final"):
+    for name in ("inoculated", "grown", "respired", "removed", "salvaged", "lost", "final"):
         ds[f"ledger_{name}"] = (("policy", "member"),
-                                daily.ledger[name].reshape(n_pol, members) * depth,
+                                np.asarray(daily.ledger.get(name, np.zeros(n_pol * members))
+                                           ).reshape(n_pol, members) * depth,
                                 {"long_name": f"annual biomass ledger: {name}",
                                  "units": "g m-2"})
     offset = meta.get("utc_offset_h", scenario.site.utc_offset_h)
@@ -158,12 +175,13 @@ def build_dataset(daily, drivers, hourly_sets, scenario, meta: dict, *,
         "floor_g_m3": float(floor),
         "washout_days": int(washout_days),
     }
-    crash = scenario.crash
+    ds.attrs["weather_basis"] = weather_basis or default_weather_basis(
+        scenario, meta, n_years)
     if crash is not None:
         ds.attrs["crash_enabled"] = int(crash.enabled)
-        for name in ("base_hazard_per_d", "stress_hazard_per_d", "overshoot_onset",
-                     "window_days", "drop_scale", "loss_fraction", "max_season_probability"):
-            ds.attrs[f"crash_{name}"] = getattr(crash, name)
+        for name in CRASH_ATTRS:
+            value = getattr(crash, name)
+            ds.attrs[f"crash_{name}"] = int(value) if isinstance(value, bool) else value
     return ds
 
 
@@ -175,6 +193,26 @@ def _weather_source(scenario, meta) -> str:
         return "clear-sky weather from monthly normals"
     name = Path(scenario.weather.path).name
     return f"{name} ({station})" if station and station != name else name
+
+
+#: Crash keys copied into the Dataset attributes (prefixed ``crash_``).
+CRASH_ATTRS = ("basis", "background_per_d", "background_t_ref_c", "background_q10",
+               "starvation_hazard_per_d", "window_days", "heat_hazard_per_d_h",
+               "cold_hazard_per_d_k", "cold_onset_k", "loss_fraction", "salvage_sellable",
+               "max_season_probability")
+
+
+def default_weather_basis(scenario, meta: dict, n_years: int) -> str:
+    """Plain words for the weather a run stands on: the scenario's weather year (and
+    its source), or the number of weather years when there are several."""
+    w = scenario.weather
+    if w.source == "file" and w.path is not None:
+        source = f"{'typical year of ' if meta.get('typical_year') else ''}{w.path.name}"
+    else:
+        source = "clear-sky weather from monthly normals"
+    if n_years == 1:
+        return f"the scenario's weather year {scenario.year} ({source})"
+    return f"{n_years} weather years ({source})"
 
 
 def _version() -> str:

@@ -49,6 +49,37 @@ def apply_site_check(forcing: pd.DataFrame, meta: dict, scenario: Scenario) -> N
                       strict=scenario.weather.site_check == "strict", path=scenario.path)
 
 
+def load_forcing_for_year(scenario: Scenario, year: int, *, map_year: bool = False,
+                          what: str = "the observations"):
+    """Forcing of the scenario's weather for a calendar *year* of dated records (a pilot
+    or a pond log): ``(table, meta, notes)``.
+
+    A file of several real years must hold *year*. A typical-year file (TMY, or a file
+    marked typical) is placed into *year*, with a note. A file of ONE real year of
+    another calendar year would silently stand in for *year*: that raises
+    :class:`InputError` unless ``map_year`` is True, when it is used with a note that
+    says so.
+    """
+    year = int(year)
+    forcing, meta = load_forcing(scenario.replace(year=year))
+    notes = [str(n) for n in meta.get("notes", [])]
+    remapped = [n for n in notes if n.startswith("the file's one whole year")]
+    if remapped:
+        own = remapped[0].split("whole year ", 1)[1].split(" ", 1)[0]
+        if not map_year:
+            raise InputError(
+                f"{what} are dated {year}, but the weather file holds the real year {own} "
+                f"only: its weather would stand in for {year}'s days. Give weather that "
+                f"covers {year}, or accept the stand-in explicitly (--map-weather-year)",
+                path=scenario.weather.path, field="weather.path")
+        notes.append(f"weather of {own} used for {what} dated {year} (--map-weather-year): "
+                     "day-to-day weather of the record is not the site's actual weather")
+    elif meta.get("typical_year"):
+        notes.append(f"typical-year weather placed into {year} for {what}: the record's "
+                     "actual weather is not known to the fit")
+    return forcing, meta, notes
+
+
 def _given_forcing(forcing, scenario: Scenario) -> tuple[pd.DataFrame, dict]:
     """``(table, meta)`` from what a caller passed as ``forcing``: a forcing table
     (:func:`pondsim.read_weather`, metadata in its ``attrs``) or a ``(table, meta)`` pair."""
@@ -176,7 +207,7 @@ def build_drivers(hourly_sets, scenario: Scenario, draws: dict | None = None) ->
         mu_max=p["mu_max_per_d"], light_param=p["light_param_umol_m2_s"],
         k_biomass=p["k_biomass_m2_g"], k_background=p["k_background_per_m"],
         light_model=s.light_model, growth_form=s.growth_form,
-        depth_m=scenario.pond.depth_m)
+        depth_m=scenario.pond.depth_m, water_temperature=tw, t_max_c=p["t_max_c"])
 
 
 def operation_of(scenario: Scenario) -> Operation:
@@ -194,7 +225,7 @@ def operation_of(scenario: Scenario) -> Operation:
 
 def simulate(scenario: Scenario, members: int | None = None, seed: int | None = None,
              *, progress: bool | None = None, forcing=None, weather_years=None,
-             draws: dict | None = None) -> xr.Dataset:
+             draws: dict | None = None, weather_basis: str | None = None) -> xr.Dataset:
     """Simulate a year of the scenario for every policy and member.
 
     Parameters
@@ -217,6 +248,10 @@ def simulate(scenario: Scenario, members: int | None = None, seed: int | None = 
         :mod:`pondsim.forcing.years`); each becomes a weather year of the ensemble.
     draws : dict of str -> ndarray, optional
         Strain parameter draws (see :func:`build_drivers`).
+    weather_basis : str, optional
+        Plain words for the weather years (e.g. "20 synthetic years resampled from ..."),
+        stored in the Dataset and printed beside crash figures (default: the scenario's
+        weather year, or the number of weather years).
 
     Returns
     -------
@@ -253,7 +288,8 @@ def simulate(scenario: Scenario, members: int | None = None, seed: int | None = 
             bar.close()
     n_draws = drivers.n_sets // len(hourly_sets)
     return build_dataset(daily, drivers, hourly_sets, scenario, meta, policy_names=names,
-                         members=per_policy, sets=(len(hourly_sets), n_draws, reps))
+                         members=per_policy, sets=(len(hourly_sets), n_draws, reps),
+                         weather_basis=weather_basis)
 
 
 def crash_model_of(scenario: Scenario) -> CrashModel | None:
@@ -261,10 +297,13 @@ def crash_model_of(scenario: Scenario) -> CrashModel | None:
     c = scenario.crash
     if c is None or not c.enabled:
         return None
-    return CrashModel(base_hazard_per_d=c.base_hazard_per_d,
-                      stress_hazard_per_d=c.stress_hazard_per_d,
-                      overshoot_onset=c.overshoot_onset, window_days=c.window_days,
-                      drop_scale=c.drop_scale, loss_fraction=c.loss_fraction)
+    return CrashModel(background_per_d=c.background_per_d,
+                      background_t_ref_c=c.background_t_ref_c,
+                      background_q10=c.background_q10,
+                      starvation_hazard_per_d=c.starvation_hazard_per_d,
+                      window_days=c.window_days, heat_hazard_per_d_h=c.heat_hazard_per_d_h,
+                      cold_hazard_per_d_k=c.cold_hazard_per_d_k, cold_onset_k=c.cold_onset_k,
+                      loss_fraction=c.loss_fraction, salvage_sellable=c.salvage_sellable)
 
 
 def _progress_bar(show: bool, n_days: int, n_members: int):

@@ -12,7 +12,10 @@ import numpy as np
 import pandas as pd
 
 from pondsim.glossary import G_M2_TO_T_HA
+from pondsim.operations.crash import CAUSES
+from pondsim.pond.capacity import trailing_mean
 from pondsim.results import figstyle as fs
+from pondsim.results.crashes import crashes_by_cause
 
 
 def _date_axis(ax, dates) -> None:
@@ -97,7 +100,7 @@ def trajectories_figure(ds, crash, path) -> Path:
     pols = [str(p) for p in ds["policy"].values]
     styles = fs.policy_styles(pols)
     k = _k_daily(ds)
-    k_smooth = crash.smoothed(k)
+    k_smooth = trailing_mean(k, crash.window_days)
     n = len(pols)
     fig, axes = fs.new_figure("Culture density by policy with carrying capacity K",
                               fs.context_of(ds), nrows=n, size=(11, 2.2 * n + 2.2),
@@ -170,20 +173,35 @@ def seasonal_figure(ds, table, path) -> Path:
 
 
 def risk_calendar_figure(ds, crash, path) -> Path:
-    """Where K falls and how likely a crash is, day by day through the year."""
+    """Crashes by cause and month for the first policy (member mean), and the daily crash
+    probability of every policy through the year; the weather basis is in the title."""
     dates = pd.to_datetime(ds["date"].values)
     pols = [str(p) for p in ds["policy"].values]
+    basis = ds.attrs.get("weather_basis", "not stated")
     fig, (ax1, ax2) = fs.new_figure(
-        "Crash-risk calendar: where K falls and how likely a crash is", fs.context_of(ds),
-        nrows=2, size=(11, 2.2 + 2.6 + 0.45 * len(pols)), source=fs.source_of(ds),
-        sharex=True, gridspec_kw={"height_ratios": [1.2, max(1.0, 0.35 * len(pols))]})
-    drop = crash.drop_index(crash.smoothed(_k_daily(ds)))
-    fall = 100 * (1 - np.exp(-np.maximum(drop, 0)))
-    ax1.fill_between(dates, 0, fall, color=fs.OKABE_ITO["sky blue"], alpha=0.5, lw=0)
-    ax1.plot(dates, fall, color=fs.REFERENCE, lw=1)
-    ax1.set_ylabel(f"fall of K over\n{crash.window_days} d [%]")
-    fs.from_zero(ax1, top=max(1.15 * float(np.nanmax(fall)) if fall.size else 1.0, 1.0))
-    ax1.grid(alpha=0.3)
+        "Crash-risk calendar: crashes by cause and daily crash probability",
+        fs.context_of(ds, f"weather: {basis}"),
+        nrows=2, size=(11, 2.4 + 2.6 + 0.45 * len(pols)), source=fs.source_of(ds),
+        gridspec_kw={"height_ratios": [1.2, max(1.0, 0.35 * len(pols))]})
+    lead = pols[0]
+    by_cause = crashes_by_cause(ds).xs(lead, level="policy")
+    months = by_cause.index.to_numpy()
+    bottom = np.zeros(len(months))
+    greys = ["0.15", "0.45", "0.65", "0.85"]
+    hatches = ["", "//", "..", "xx"]
+    for j, cause in enumerate(CAUSES):
+        v = by_cause[f"{cause}_crashes_per_pond"].to_numpy()
+        ax1.bar(months, v, 0.8, bottom=bottom, color=greys[j % len(greys)],
+                hatch=hatches[j % len(hatches)], edgecolor="white", label=cause)
+        bottom += v
+    ax1.set_xticks(range(1, 13), [pd.Timestamp(2001, m, 1).strftime("%b")
+                                  for m in range(1, 13)])
+    ax1.set_xlim(0.4, 12.6)
+    fs.from_zero(ax1, top=max(float(bottom.max()) * 1.15, 1e-3))
+    ax1.set_ylabel(f"crashes per pond\n[month$^{{-1}}$], {lead}")
+    ax1.legend(fontsize=8, ncol=len(CAUSES), loc="upper left", bbox_to_anchor=(1.0, 1.0),
+               title="cause", title_fontsize=8)
+    ax1.grid(axis="y", alpha=0.3)
     prob = -np.expm1(-ds["hazard"].astype(float)).mean("member")  # daily crash probability
     x0, x1 = mdates.date2num(dates[0].to_pydatetime()), mdates.date2num(
         dates[-1].to_pydatetime())

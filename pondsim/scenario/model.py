@@ -113,13 +113,28 @@ class Policy:
 @dataclass(frozen=True)
 class Crash:
     enabled: bool
-    base_hazard_per_d: float
-    stress_hazard_per_d: float
-    overshoot_onset: float
+    basis: str
+    background_per_d: float
+    background_t_ref_c: float
+    background_q10: float
+    starvation_hazard_per_d: float
     window_days: int
-    drop_scale: float
+    heat_hazard_per_d_h: float
+    cold_hazard_per_d_k: float
+    cold_onset_k: float
     loss_fraction: float
+    salvage_sellable: bool
     max_season_probability: float
+
+    # Names of the hazard before it had named causes, read by the HTML report until it
+    # shows the causes: the background hazard, and the largest weather term's value.
+    @property
+    def base_hazard_per_d(self) -> float:
+        return self.background_per_d
+
+    @property
+    def stress_hazard_per_d(self) -> float:
+        return self.starvation_hazard_per_d
 
 
 @dataclass(frozen=True)

@@ -176,21 +176,40 @@ SCHEMA: dict[str, dict[str, Key]] = {
     },
     "crash": {
         "enabled": Key("bool", True, "Draw culture crashes (false: deterministic runs)."),
-        "base_hazard_per_d": Key("float", 0.0005, "Daily crash hazard whatever the weather "
-                                 "(contamination, grazers); 0.0005 is 4.4 % per 90-day "
-                                 "season. ASSUMPTION: replace with the site's crash "
-                                 "history.", "d-1", 0.0, 1.0),
-        "stress_hazard_per_d": Key("float", 0.25, "Largest hazard that overshoot while K "
-                                   "falls can add. ASSUMPTION.", "d-1", 0.0, 50.0),
-        "overshoot_onset": Key("float", 0.8, "Density/K ratio above which overshoot "
-                               "stress counts. ASSUMPTION.", "1", 0.0, 0.99),
-        "window_days": Key("int", 3, "Window of the K-drop index ln K(t-w) - ln K(t).", "d",
-                           1, 30),
-        "drop_scale": Key("float", 0.2, "Fall of ln K over the window that counts as one "
-                          "unit of drop stress (0.2 = K down 18 %). ASSUMPTION.", "1", 0.0,
-                          5.0, open_low=True),
+        "basis": Key("str", "assumption: pondsim defaults, not measured at this site",
+                     "Where the hazard values come from (written by `pondsim hazardfit`; "
+                     "printed beside every crash figure)."),
+        "background_per_d": Key("float", 0.002, "Background hazard (contamination, "
+                                "grazers) at background_t_ref_c: 0.002 is 16 % per 90-day "
+                                "season. ASSUMPTION: fit it to the site's crash log "
+                                "(`pondsim hazardfit`).", "d-1", 0.0, 1.0),
+        "background_t_ref_c": Key("float", 20.0, "Water temperature at which the background "
+                                  "hazard is background_per_d.", "degC", -5.0, 50.0),
+        "background_q10": Key("float", 2.0, "Factor by which the background hazard rises "
+                              "per 10 K of day-mean water temperature (1: no temperature "
+                              "effect); warm water favours grazers. ASSUMPTION: Q10 ~ 2 is "
+                              "common practice for biological rates.", "1", 0.1, 20.0),
+        "starvation_hazard_per_d": Key("float", 0.02, "Light/carbon starvation hazard at a "
+                                       "mean net loss of 0.1 d-1 over window_days (linear "
+                                       "in the loss rate; a culture above what recent days "
+                                       "sustain loses biomass). ASSUMPTION.", "d-1", 0.0,
+                                       50.0),
+        "window_days": Key("int", 3, "Recent days: window of the starvation index (mean "
+                           "net growth rate since inoculation) and of the cold-shock "
+                           "reference temperature.", "d", 1, 30),
+        "heat_hazard_per_d_h": Key("float", 0.02, "Heat hazard per hour of the day with the "
+                                   "water above the strain's t_max_c. ASSUMPTION.",
+                                   "d-1 h-1", 0.0, 10.0),
+        "cold_hazard_per_d_k": Key("float", 0.005, "Cold-shock hazard per kelvin that the "
+                                   "day-mean water temperature falls below the previous "
+                                   "window_days' mean beyond cold_onset_k. ASSUMPTION.",
+                                   "d-1 K-1", 0.0, 10.0),
+        "cold_onset_k": Key("float", 3.0, "Fall of the day-mean water temperature that "
+                            "counts as no shock. ASSUMPTION.", "K", 0.0, 30.0),
         "loss_fraction": Key("float", 0.8, "Share of standing biomass lost in a crash (the "
-                             "rest is salvaged as harvest).", "1", 0.0, 1.0),
+                             "rest is salvage, booked apart from harvest).", "1", 0.0, 1.0),
+        "salvage_sellable": Key("bool", False, "Count crash salvage (x recovery efficiency) "
+                                "as harvested product."),
         "max_season_probability": Key("float", 0.10, "Risk limit: highest acceptable "
                                       "probability of at least one crash in a season when "
                                       "naming the best policy per season.", "1", 0.0, 1.0,

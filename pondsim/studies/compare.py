@@ -12,17 +12,16 @@ import xarray as xr
 
 from pondsim.glossary import G_M2_TO_T_HA
 from pondsim.operations.crash import CrashModel
+from pondsim.pond.capacity import k_drop_index, trailing_mean
 
 
 def at_risk(ds: xr.Dataset) -> xr.DataArray:
-    """Days at risk: the weather-driven stress hazard is at least the base hazard.
-
-    That is, the culture stands above the overshoot onset while the smoothed K falls
-    enough to double (or more) the everyday crash hazard. Dims (policy, member, day).
+    """Days at risk: the crash hazard is at least twice the background hazard at its
+    reference water temperature (warm water, starvation, heat or a cold shock have at
+    least doubled the everyday risk). Dims (policy, member, day).
     """
-    base = float(ds.attrs.get("crash_base_hazard_per_d", 0.0))
-    stress = ds["hazard"] - base
-    return (stress > max(base, 1e-9)) & (ds["status"] == 0)
+    base = float(ds.attrs.get("crash_background_per_d", 0.0))
+    return (ds["hazard"] >= 2.0 * max(base, 1e-9)) & (ds["status"] == 0)
 
 
 def season_table(ds: xr.Dataset) -> pd.DataFrame:
@@ -185,12 +184,16 @@ def best_by_season(table: pd.DataFrame, max_probability: float) -> pd.DataFrame:
 def risk_calendar(ds: xr.Dataset, crash: CrashModel, n_days: int = 12) -> pd.DataFrame:
     """The days on which the smoothed K falls fastest, and where each policy stands then.
 
-    Columns: date, season, K̄ [g m-3], K-drop over the window [%], and per policy the
-    median overshoot ratio X/K̄ over members on that day (deterministic given the
-    weather; crashes aside).
+    A description of the weather, not the hazard (starvation is measured by the
+    culture's own net loss, :mod:`pondsim.operations.crash`). Columns: date, season, K̄
+    [g m-3] (trailing mean over ``crash.window_days``), fall of K̄ over the window [%],
+    and per policy the median ratio X/K̄ over members on that day.
     """
-    k_smooth = crash.smoothed(ds["carrying_capacity"].values)
-    drop = crash.drop_index(k_smooth)
+    k = ds["carrying_capacity"]
+    if "member" in k.dims:
+        k = k.median("member")
+    k_smooth = trailing_mean(k.values, crash.window_days)
+    drop = k_drop_index(k_smooth, crash.window_days)
     order = np.argsort(-drop)[:n_days]
     order = order[drop[order] > 0]
     rows = []

@@ -284,7 +284,8 @@ def _round(scenario, *, n_years, n_draws, members, seed, progress, real):
     draws = (sample_draws(scenario, n_draws, seed, n_years=len(years))
              if scenario.uncertainty.parameters else {})
     ds = simulate(scenario, members=members, seed=seed, forcing=(years[0], meta),
-                  weather_years=years, draws=draws or None, progress=progress)
+                  weather_years=years, draws=draws or None, progress=progress,
+                  weather_basis=years_basis(scenario, meta, len(years)))
     ds.attrs["draws_nested"] = 1
     return ds, meta
 
@@ -385,6 +386,8 @@ def run_outlook(scenario, *, n_years: int, n_draws: int | None = None, members: 
                             seed=sub, progress=progress, real=real_pair)
         parts.append(ds_k)
         ds = _merge_rounds(parts, axis)
+        ds.attrs["weather_basis"] = years_basis(scenario, meta,
+                                                int(ds.attrs["weather_years"]))
         if not converge:
             return ds, meta
         table = annual_table(ds, seed=seed)
@@ -422,3 +425,15 @@ def run_outlook(scenario, *, n_years: int, n_draws: int | None = None, members: 
     meta = dict(meta)
     meta["rounds"] = rounds
     return ds, meta
+
+
+def years_basis(scenario, meta: dict, n_years: int) -> str:
+    """Plain words for the weather years of :func:`weather_years`: the file's real years,
+    or synthetic years resampled from the scenario's weather year."""
+    w = scenario.weather
+    name = w.path.name if w.source == "file" and w.path is not None else \
+        "clear-sky weather from monthly normals"
+    if any("real weather years" in str(n) for n in meta.get("notes", [])):
+        return f"{n_years} real weather years of {name}"
+    return (f"{n_years} synthetic weather years resampled from the scenario's weather "
+            f"year ({name})")
