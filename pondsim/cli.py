@@ -401,6 +401,7 @@ def cmd_run(args) -> int:
     from pondsim.results.tables import policy_summary
 
     scenario = load_checked_scenario(args)
+    _check_memory(scenario, args.members or scenario.run.members)
     seed = scenario.run.seed if args.seed is None else args.seed
     with _output_set(args, "run", "", seed) as files:
         t0 = time.perf_counter()
@@ -456,6 +457,13 @@ def cmd_run(args) -> int:
     return 0
 
 
+def _check_memory(scenario, members, n_sets=1):
+    """Refuse, with the estimate and the limit, a run whose daily outputs would not fit."""
+    from pondsim.operations.simulate import check_memory
+
+    check_memory(scenario, members, n_sets)
+
+
 def cmd_compare(args) -> int:
     import pandas as pd
 
@@ -476,6 +484,7 @@ def cmd_compare(args) -> int:
 
     scenario = load_checked_scenario(args)
     members = args.members or max(scenario.run.members, 200)
+    _check_memory(scenario, members)
     seed = scenario.run.seed if args.seed is None else args.seed
     crash = crash_model_of(scenario)
     if crash is None:
@@ -563,6 +572,7 @@ def cmd_outlook(args) -> int:
     members = args.members or (max(scenario.run.members, OUTLOOK_REPLICATES) if crashes
                                else scenario.run.members)
     seed = scenario.run.seed if args.seed is None else args.seed
+    _check_memory(scenario, args.members, n_years * n_draws)
     with _output_set(args, "outlook", "-outlook", seed) as files:
         t0 = time.perf_counter()
         print(f"{scenario.study_name}: outlook, {n_draws} parameter draw(s) per weather "

@@ -27,7 +27,7 @@ from pathlib import Path
 
 import xarray as xr
 
-ROOT = Path(__file__).resolve().parents[1]
+ROOT = Path(__file__).resolve().parents[2]
 DEMO = ROOT / "scenarios" / "kestrel_flats.toml"
 DEMO_SITES = ROOT / "scenarios" / "sites_demo.csv"
 

@@ -33,6 +33,7 @@ HOURS_PER_DAY = 24
 STEP_D = 1.0 / HOURS_PER_DAY  # one hour [d]
 
 STATUS_GROWING, STATUS_RESTARTING, STATUS_NOT_STARTED = 0, 1, 2
+ENGINES = ("numpy", "compiled")
 
 
 class LedgerError(RuntimeError):
@@ -335,7 +336,8 @@ def logistic_inverse_capacity(k_day, r_mean, m_mean):
 def integrate(drivers: Drivers, rules: HarvestRules, operation: Operation, *,
               set_of_member: np.ndarray | None = None, crash=None,
               stream_of_member: np.ndarray | None = None,
-              seed: int | None = None, progress=None, check_ledger: bool = True) -> Daily:
+              seed: int | None = None, progress=None, check_ledger: bool = True,
+              engine: str = "numpy") -> Daily:
     """Integrate density for every member over the year.
 
     Parameters
@@ -358,11 +360,25 @@ def integrate(drivers: Drivers, rules: HarvestRules, operation: Operation, *,
         Called with the number of days done after each day (for progress bars).
     check_ledger : bool
         Raise :class:`LedgerError` if the biomass ledger does not close.
+    engine : {"numpy", "compiled"}
+        ``"numpy"`` (this function, the reference) or ``"compiled"``
+        (:func:`pondsim.operations.kernel.integrate_compiled`, same results to ~1e-6
+        relative); a light model the compiled engine does not cover runs on numpy.
 
     Returns
     -------
     Daily
     """
+    if engine not in ENGINES:
+        raise ValueError(f"unknown engine {engine!r}; choose one of {ENGINES}")
+    if engine == "compiled":
+        from pondsim.operations import kernel
+
+        if kernel.supports(drivers):
+            return kernel.integrate_compiled(
+                drivers, rules, operation, set_of_member=set_of_member, crash=crash,
+                stream_of_member=stream_of_member, seed=seed, progress=progress,
+                check_ledger=check_ledger)
     n = rules.n_members
     n_days = drivers.n_days
     if set_of_member is not None:

@@ -52,6 +52,7 @@ class Ensemble:
     pond_count: int = 1
     washout_days: int = 7
     dewatering_cost_kg_per_m3: float = 0.0
+    engine: str = "numpy"  # integrator: see pondsim.operations.engine.integrate
 
 
 def ensemble_of(scenario, drivers: Drivers, members: int, seed: int) -> Ensemble:
@@ -63,7 +64,8 @@ def ensemble_of(scenario, drivers: Drivers, members: int, seed: int) -> Ensemble
         operation=operation_of(scenario), crash=crash_model_of(scenario), seed=seed,
         depth_m=scenario.pond.depth_m, pond_volume_m3=scenario.pond.volume_m3,
         pond_count=scenario.pond.count, washout_days=scenario.harvest.washout_days,
-        dewatering_cost_kg_per_m3=scenario.harvest.dewatering_cost_kg_per_m3)
+        dewatering_cost_kg_per_m3=scenario.harvest.dewatering_cost_kg_per_m3,
+        engine=scenario.run.engine)
 
 
 def scenario_plans(scenario):
@@ -127,7 +129,8 @@ def run_plans(ens: Ensemble, plans, period_of_day, n_seasons: int | None = None
     set_of_member = np.tile(ens.set_of_member, n)
     stream = np.tile(np.arange(ens.per_candidate), n)  # common random numbers
     daily = integrate(ens.drivers, rules, ens.operation, set_of_member=set_of_member,
-                      crash=ens.crash, seed=ens.seed, stream_of_member=stream)
+                      crash=ens.crash, seed=ens.seed, stream_of_member=stream,
+                      engine=ens.engine)
     m = ens.per_candidate
     eff = ens.operation.recovery_efficiency
     removed = daily.removed.reshape(n, m, -1)

@@ -4,6 +4,9 @@ in its signature; this module only wires them together."""
 
 from __future__ import annotations
 
+import hashlib
+from collections import OrderedDict
+
 import numpy as np
 import pandas as pd
 import xarray as xr
@@ -106,8 +109,8 @@ def _one_year(forcing: pd.DataFrame, scenario: Scenario) -> pd.DataFrame:
     return sel
 
 
-def hourly_light_and_water(forcing: pd.DataFrame, scenario: Scenario) -> pd.DataFrame:
-    """PAR entering the culture and the pond's thermal budget, hour by hour."""
+def _light_and_water(forcing: pd.DataFrame, scenario: Scenario) -> pd.DataFrame:
+    """PAR entering the culture and the pond's thermal budget, hour by hour (uncached)."""
     par = light.par_at_surface(forcing, par_fraction=scenario.light.par_fraction,
                                photons_per_joule=scenario.light.photons_per_joule_umol,
                                refractive_index=scenario.pond.refractive_index)
@@ -120,6 +123,44 @@ def hourly_light_and_water(forcing: pd.DataFrame, scenario: Scenario) -> pd.Data
     ppj = scenario.light.photons_per_joule_umol
     out.attrs["photons_per_joule_umol"] = (light.photons_per_joule_par_astm_g173()
                                            if ppj is None else ppj)
+    return out
+
+
+#: Weather years whose light and water tables are kept for reuse within a process
+#: (~1 MB each): a study that simulates the same years again (``tune`` three times,
+#: ``outlook`` then its Sobol step, ``report``) computes each year's energy balance once.
+PHYSICS_CACHE_SIZE = 128
+_PHYSICS_CACHE: OrderedDict[str, pd.DataFrame] = OrderedDict()
+
+
+def _physics_key(forcing: pd.DataFrame, scenario: Scenario) -> str:
+    """Identity of a weather year's light and water: the forcing's content (values,
+    index, column names) and every scenario setting they depend on."""
+    digest = hashlib.blake2b(digest_size=20)
+    digest.update(pd.util.hash_pandas_object(forcing, index=True).to_numpy().tobytes())
+    digest.update(repr((tuple(forcing.columns), scenario.light, scenario.pond,
+                        scenario.weather.wind_height_m, scenario.strain.t_max_c)).encode())
+    return digest.hexdigest()
+
+
+def hourly_light_and_water(forcing: pd.DataFrame, scenario: Scenario) -> pd.DataFrame:
+    """PAR entering the culture and the pond's thermal budget, hour by hour.
+
+    Computed once per weather year and scenario physics within a process and reused
+    (keyed by the forcing's content, see :data:`PHYSICS_CACHE_SIZE`); each call returns
+    its own shallow copy, so a caller that adds columns does not change the cache.
+    """
+    key = _physics_key(forcing, scenario)
+    table = _PHYSICS_CACHE.get(key)
+    if table is None:
+        table = _light_and_water(forcing, scenario)
+        _PHYSICS_CACHE[key] = table
+        while len(_PHYSICS_CACHE) > PHYSICS_CACHE_SIZE:
+            _PHYSICS_CACHE.popitem(last=False)
+    else:
+        _PHYSICS_CACHE.move_to_end(key)
+    out = table.copy(deep=False)
+    out.attrs = dict(table.attrs)
     return out
 
 
@@ -281,8 +322,8 @@ def simulate(scenario: Scenario, members: int | None = None, seed: int | None = 
     try:
         daily = integrate(drivers, rules, operation_of(scenario),
                           set_of_member=set_of_member, crash=crash_model_of(scenario),
-                          seed=seed, stream_of_member=stream,
-                          progress=None if bar is None else (lambda d: bar.update(1)))
+                          seed=seed, stream_of_member=stream, engine=scenario.run.engine,
+                          progress=None if bar is None else (lambda d: bar.update(d - bar.n)))
     finally:
         if bar is not None:
             bar.close()
@@ -290,6 +331,52 @@ def simulate(scenario: Scenario, members: int | None = None, seed: int | None = 
     return build_dataset(daily, drivers, hourly_sets, scenario, meta, policy_names=names,
                          members=per_policy, sets=(len(hourly_sets), n_draws, reps),
                          weather_basis=weather_basis)
+
+
+#: Peak bytes per series-day of a run (one policy × member × day): the engine's daily
+#: arrays (~46 B), the results Dataset (~54 B) and writing it to netCDF (~40 B), measured
+#: with tracemalloc on the demo (benchmarks.engine); an estimate, not a bound.
+BYTES_PER_SERIES_DAY = 140
+
+
+def memory_estimate(scenario: Scenario, members: int, n_sets: int = 1) -> int:
+    """Peak memory [bytes] of simulating and writing ``members`` crash members of each of
+    ``n_sets`` driver sets (weather years × parameter draws) for every policy and plan."""
+    n_days = pd.Timestamp(year=scenario.year, month=12, day=31).dayofyear
+    entries = len(scenario.policies) + len(scenario.plans)
+    return int(entries) * int(members) * int(n_sets) * n_days * BYTES_PER_SERIES_DAY
+
+
+def memory_available() -> int:
+    """Memory the system can give this process now [bytes] (MemAvailable on Linux,
+    else physical memory)."""
+    import os
+
+    try:
+        with open("/proc/meminfo", encoding="ascii") as fh:
+            for line in fh:
+                if line.startswith("MemAvailable:"):
+                    return int(line.split()[1]) * 1024
+    except OSError:
+        pass
+    return os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES")
+
+
+def check_memory(scenario: Scenario, members: int, n_sets: int = 1, *,
+                 share: float = 0.7, field: str = "--members") -> None:
+    """Raise :class:`InputError` with the estimate and the limit when a run's daily outputs
+    would need more than *share* of the memory available now."""
+    need = memory_estimate(scenario, members, n_sets)
+    limit = share * memory_available()
+    if need > limit:
+        per_member = memory_estimate(scenario, 1, n_sets)
+        most = max(int(limit // per_member), 0)
+        raise InputError(
+            f"{members:,} member(s) x {n_sets} weather year(s)/draw(s) x "
+            f"{len(scenario.policies) + len(scenario.plans)} policies/plans would need about "
+            f"{need / 1e9:,.1f} GB for the daily outputs; the limit is {limit / 1e9:,.1f} GB "
+            f"({share:.0%} of the memory available now); allowed here: at most {most:,} "
+            "member(s)", path=scenario.path, field=field)
 
 
 def crash_model_of(scenario: Scenario) -> CrashModel | None:

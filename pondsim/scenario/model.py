@@ -180,6 +180,7 @@ class Run:
     members: int
     seed: int
     progress: bool
+    engine: str = "numpy"
 
 
 @dataclass(frozen=True)
