@@ -25,44 +25,28 @@ Hydrology*, ch. 4. McGraw-Hill.
 
 from __future__ import annotations
 
-import math
-
 import numpy as np
 import pandas as pd
 
 from pondsim.errors import InputError
 from pondsim.pond.light import WATER_REFRACTIVE_INDEX, transmitted_shortwave
-
-#: Stefan-Boltzmann constant [W m-2 K-4] (CODATA 2018).
-STEFAN_BOLTZMANN = 5.670374419e-8
-#: Density of the culture taken as that of water at 4-30 °C, within 0.5 % [kg m-3].
-WATER_DENSITY = 1000.0
-#: Specific heat of water at 20 °C [J kg-1 K-1].
-WATER_HEAT_CAPACITY = 4186.0
-#: Latent heat of fusion of ice at 0 °C [J kg-1].
-LATENT_HEAT_FUSION = 334.0e3
-#: Density of ice [kg m-3] and its thermal conductivity near 0 °C [W m-1 K-1] (from
-#: memory; the usual values in Stefan-law ice growth).
-ICE_DENSITY = 917.0
-ICE_CONDUCTIVITY = 2.2
-#: Longwave emissivity of a water surface [-] (Béchet et al. 2011 use 0.97).
-WATER_EMISSIVITY = 0.97
-#: Default heat-transfer coefficient water -> deep ground [W m-2 K-1]: soil conductivity
-#: about 1 W m-1 K-1 over 0.5-1 m to the depth of constant temperature gives 1-2
-#: (common practice; an assumption, set it from site data where known).
-GROUND_CONDUCTANCE = 1.5
-#: Plausible range of a measured downwelling longwave value [W m-2]; outside it the
-#: sky-emissivity formula is used for that hour.
-IR_PLAUSIBLE_W_M2 = (50.0, 600.0)
-#: Minimum clear-sky GHI for a usable clearness ratio in the cloud correction [W m-2].
-CLOUD_RATIO_MIN_GHI_CLEAR = 50.0
+from pondsim.pond.longwave import STEFAN_BOLTZMANN, sky_longwave  # noqa: F401
+from pondsim.pond.thermal_step import (  # noqa: F401
+    GROUND_CONDUCTANCE,
+    ICE_CONDUCTIVITY,
+    ICE_DENSITY,
+    LATENT_HEAT_FUSION,
+    WATER_DENSITY,
+    WATER_EMISSIVITY,
+    WATER_HEAT_CAPACITY,
+    integrate_heat_balance,
+)
+from pondsim.pond.transfer import latent_heat_vaporisation, wind_at_2m, wind_function
 
 _KELVIN = 273.15
-_MJ_PER_DAY_TO_W = 1e6 / 86400.0
 _REQUIRED = ("ghi", "dhi", "temp_air", "wind_speed", "relative_humidity", "pressure",
              "solar_zenith")
 _DEPTH_RANGE_M = (0.05, 1.0)
-_MIN_COUPLING = 1e-3  # W m-2 K-1, guards the exponential weights against a = 0
 
 
 # FAO-56 vapour-pressure and pressure relations live in pondsim.forcing.psychrometry (shared with
@@ -73,195 +57,6 @@ from pondsim.forcing.psychrometry import (  # noqa: E402, F401
     saturation_vapour_pressure,
     slope_saturation_vapour_pressure,
 )
-
-
-def wind_at_2m(uz, z_m):
-    """Wind speed at 2 m from a measurement at height z, FAO-56 eq. 47.
-
-    Parameters
-    ----------
-    uz : float, array-like or Series [m s-1]
-        Wind speed measured at height *z_m*.
-    z_m : float [m]
-        Measurement height, 0.5-100 m.
-
-    Returns
-    -------
-    same type as *uz* [m s-1]
-
-    Notes
-    -----
-    .. math:: u_2 = u_z \\frac{4.87}{\\ln(67.8 z - 5.42)}
-
-    a logarithmic profile over short grass; over open water (smoother) it slightly
-    underestimates u_2, which is how the Penman open-water wind function is usually fed.
-
-    References
-    ----------
-    Allen et al. (1998) FAO-56, eq. 47.
-    """
-    z = float(z_m)
-    if not 0.5 <= z <= 100.0:
-        raise InputError(f"wind measurement height must be in 0.5-100 m, got {z_m!r}",
-                         field="wind_height_m")
-    return uz * (4.87 / math.log(67.8 * z - 5.42))
-
-
-def latent_heat_vaporisation(t_c):
-    """Latent heat of vaporisation of water.
-
-    Parameters
-    ----------
-    t_c : float, array-like or Series [°C]
-
-    Returns
-    -------
-    same type [MJ kg-1]
-
-    Notes
-    -----
-    λ = 2.501 − 0.002361 T (Harrison 1963, as given in FAO-56 Annex 3, eq. 3-1). It is
-    used here only to turn the latent heat flux into an evaporated mass; FAO-56's
-    constant 2.45 MJ kg-1 corresponds to 20 °C.
-    """
-    return 2.501 - 0.002361 * t_c
-
-
-def wind_function(u2):
-    """Open-water Penman wind function of Shuttleworth (1993), as an energy flux.
-
-    Parameters
-    ----------
-    u2 : float, array-like or Series [m s-1]
-        Wind speed at 2 m.
-
-    Returns
-    -------
-    same type [W m-2 kPa-1]
-        Latent heat flux per kPa of vapour-pressure deficit at the surface.
-
-    Notes
-    -----
-    Shuttleworth (1993, eq. 4.2.31 in the Handbook of Hydrology) writes the aerodynamic
-    evaporation from open water as
-
-    .. math:: λE = 6.43\\,(1 + 0.536\\,u_2)\\,(e_s - e_a)\\quad[\\mathrm{MJ\\,m^{-2}\\,d^{-1}}]
-
-    which is returned here converted to W m-2 kPa-1 (× 10⁶/86 400).
-    """
-    return 6.43 * _MJ_PER_DAY_TO_W * (1.0 + 0.536 * u2)
-
-
-# ---------------------------------------------------------------------------------------
-# Sky longwave
-# ---------------------------------------------------------------------------------------
-
-def clear_sky_emissivity_brutsaert(vapour_pressure_kpa, temp_air_c):
-    """Clear-sky atmospheric emissivity of Brutsaert (1975).
-
-    Parameters
-    ----------
-    vapour_pressure_kpa : float, array-like or Series [kPa]
-        Actual vapour pressure near the surface.
-    temp_air_c : float, array-like or Series [°C]
-        Screen-level air temperature.
-
-    Returns
-    -------
-    same type [-]
-
-    Notes
-    -----
-    .. math:: ε_{clear} = 1.24\\,(e/T)^{1/7},\\quad e\\ [\\mathrm{hPa}],\\ T\\ [\\mathrm{K}]
-
-    References
-    ----------
-    Brutsaert, W. (1975) On a derivable formula for long-wave radiation from clear skies.
-    *Water Resour. Res.* 11:742-744. doi:10.1029/WR011i005p00742
-    """
-    e_hpa = np.maximum(10.0 * vapour_pressure_kpa, 0.0)
-    return 1.24 * (e_hpa / (temp_air_c + _KELVIN)) ** (1.0 / 7.0)
-
-
-def cloud_fraction_crawford_duchon(ghi, ghi_clear):
-    """Cloud fraction from the clearness ratio, carried through the night.
-
-    Parameters
-    ----------
-    ghi : pandas.Series [W m-2]
-        Measured global horizontal irradiance, time-ordered.
-    ghi_clear : pandas.Series [W m-2]
-        Clear-sky GHI for the same hours.
-
-    Returns
-    -------
-    pandas.Series [-]
-        clf = 1 − s, s = ghi/ghi_clear clipped to 0-1, in hours with
-        ghi_clear ≥ 50 W m-2. Other hours (night, low sun) carry the last daytime value
-        forward; hours before the first daytime value take that first value; with no
-        daytime hour at all the sky is taken as clear (0).
-
-    References
-    ----------
-    Crawford, T. M. & Duchon, C. E. (1999) An improved parameterization for estimating
-    effective atmospheric emissivity for use in calculating daytime downwelling longwave
-    radiation. *J. Appl. Meteorol.* 38:474-480.
-    doi:10.1175/1520-0450(1999)038<0474:AIPFEE>2.0.CO;2
-    """
-    g = ghi.to_numpy(dtype=float)
-    gc = ghi_clear.to_numpy(dtype=float)
-    day = np.isfinite(g) & np.isfinite(gc) & (gc >= CLOUD_RATIO_MIN_GHI_CLEAR)
-    s = np.full(g.shape, np.nan)
-    s[day] = np.clip(g[day] / gc[day], 0.0, 1.0)
-    clf = pd.Series(1.0 - s, index=ghi.index).ffill().bfill().fillna(0.0)
-    clf.name = "cloud_fraction"
-    return clf
-
-
-def sky_longwave(forcing):
-    """Downwelling longwave irradiance on the pond surface.
-
-    Parameters
-    ----------
-    forcing : pandas.DataFrame
-        Needs ``temp_air`` [°C] and ``relative_humidity`` [%]; uses ``ir_horizontal``
-        [W m-2] where present, finite and within 50-600 W m-2; for the other hours needs
-        ``ghi`` and ``ghi_clear`` [W m-2].
-
-    Returns
-    -------
-    pandas.Series [W m-2]
-        ``longwave_down``.
-
-    Notes
-    -----
-    Where no usable measurement exists, L↓ = ε σ T_a⁴ with the all-sky emissivity of
-    Crawford & Duchon (1999, eq. 4), ε = clf + (1 − clf) ε_clear, and ε_clear from
-    Brutsaert (1975) (see :func:`clear_sky_emissivity_brutsaert` and
-    :func:`cloud_fraction_crawford_duchon`).
-    """
-    t_air = forcing["temp_air"].to_numpy(dtype=float)
-    ea = forcing["relative_humidity"].to_numpy(dtype=float) / 100.0 \
-        * saturation_vapour_pressure(t_air)
-    out = np.full(t_air.shape, np.nan)
-    if "ir_horizontal" in forcing.columns:
-        ir = forcing["ir_horizontal"].to_numpy(dtype=float)
-        lo, hi = IR_PLAUSIBLE_W_M2
-        good = np.isfinite(ir) & (ir >= lo) & (ir <= hi)
-        out[good] = ir[good]
-    need = ~np.isfinite(out)
-    if need.any():
-        if "ghi_clear" not in forcing.columns:
-            raise InputError("forcing lacks column ghi_clear, needed for the sky longwave "
-                             "where ir_horizontal is absent or implausible",
-                             field="ghi_clear")
-        clf = cloud_fraction_crawford_duchon(forcing["ghi"], forcing["ghi_clear"])
-        eps = clf.to_numpy() + (1.0 - clf.to_numpy()) \
-            * clear_sky_emissivity_brutsaert(ea, t_air)
-        formula = eps * STEFAN_BOLTZMANN * (t_air + _KELVIN) ** 4
-        out[need] = formula[need]
-    return pd.Series(out, index=forcing.index, name="longwave_down")
-
 
 # ---------------------------------------------------------------------------------------
 # Flux terms
@@ -500,155 +295,6 @@ def heat_exchange_inputs(forcing, pond, *, wind_height_m=10.0):
     return pd.DataFrame(data, index=forcing.index)
 
 
-# ---------------------------------------------------------------------------------------
-# Integration
-# ---------------------------------------------------------------------------------------
-
-def _flux(tw, ts, slope, fixed, f, fg, e_a, t_a, g, t_g, t_m, p, eps_sigma, q_in):
-    """Scalar net flux [W m-2] of one step (the loop's copy of :func:`heat_flux_terms`).
-
-    Surface exchange at the surface temperature *ts* (the water's, or that of the ice);
-    floor conduction and mixing at the water temperature *tw*. With *slope* returns
-    (q, dq/dT) — for ts != tw the surface balance and its slope in ts only — else
-    (q, lw, latent, convection, ground, makeup heat, evaporation, makeup mass).
-    """
-    tk = ts + _KELVIN
-    es = 0.6108 * math.exp(17.27 * ts / (ts + 237.3))
-    lam = (2.501 - 0.002361 * ts) * 1e6
-    lat = f * (es - e_a)
-    evap = lat / lam
-    mk = evap - p if evap > p else 0.0
-    lw = eps_sigma * tk * tk * tk * tk
-    conv = fg * (ts - t_a)
-    grd = g * (tw - t_g)
-    cp = WATER_HEAT_CAPACITY
-    mkq = cp * (mk * (t_m - tw) + p * (t_a - tw))
-    q = fixed - lw - lat - conv - grd + mkq
-    if not slope:
-        return q, lw, lat, conv, grd, mkq, evap, mk
-    des = 4098.0 * es / ((ts + 237.3) * (ts + 237.3))
-    d_surface = -4.0 * eps_sigma * tk * tk * tk - f * des - fg
-    if ts != tw:
-        return q + grd - mkq - q_in, d_surface  # surface balance only
-    dmk = f * des / lam if evap > p else 0.0
-    dq = d_surface - g + cp * (dmk * (t_m - tw) - mk - p)
-    return q, dq
-
-
-def _integrate(inp, t_start, ice_start, step_s, heat_capacity, record=True):
-    """Step the pond through *inp* (dict of lists); pure Python floats for speed.
-
-    Each step solves for the step-mean temperature T̄ of the exponential relaxation
-    through the step (see :func:`water_temperature`), then closes energy exactly:
-    T_end = T_start + q(T̄) Δt / C.
-    """
-    expm1 = math.expm1
-    sw, lwin = inp["q_shortwave"], inp["q_longwave_in"]
-    ta, ea = inp["temp_air_c"], inp["vapour_pressure_kpa"]
-    fw, gam = inp["wind_function_w_m2_kpa"], inp["psychrometric_kpa_c"]
-    tg, gg = inp["ground_temperature_c"], inp["ground_conductance_w_m2_k"]
-    tm, rain = inp["makeup_temperature_c"], inp["rain_kg_m2_s"]
-    qin, emis = inp["heat_input_w_m2"], inp["water_emissivity"]
-    sigma = STEFAN_BOLTZMANN
-    ice_volumetric_latent = ICE_DENSITY * LATENT_HEAT_FUSION  # J m-3
-    n = len(sw)
-    if record:
-        out_mean = [0.0] * n
-        out_end = [0.0] * n
-        out_ice = [0.0] * n
-        out_frozen = [False] * n
-        out_terms = [[0.0] * n for _ in range(6)]  # lw_out, evap, conv, ground, makeup, E
-        out_makeup = [0.0] * n
-        out_surface = [0.0] * n
-    t = float(t_start)
-    ice = float(ice_start)
-    dt = float(step_s)
-    c = float(heat_capacity)
-
-    for i in range(n):
-        fixed = sw[i] + lwin[i] + qin[i]
-        f = fw[i]
-        fg = f * gam[i]
-        e_a = ea[i]
-        t_a = ta[i]
-        g = gg[i]
-        t_g = tg[i]
-        t_m = tm[i]
-        p = rain[i]
-        eps_sigma = emis[i] * sigma
-        ice0 = ice
-
-        prm = (fixed, f, fg, e_a, t_a, g, t_g, t_m, p, eps_sigma, qin[i])
-
-        if ice0 > 0.0:
-            # Water held at 0 °C under the ice: energy first freezes or melts ice.
-            tbar = 0.0
-            t_end = 0.0
-            ts = 0.0
-            res = _flux(0.0, 0.0, False, *prm)
-            surface_gain = res[0] + res[4] - res[5] - qin[i]
-            if surface_gain < 0.0:
-                # The ice surface cools below 0 °C until conduction through the ice
-                # supplies its net loss: q_surface(T_s) = k_ice T_s / h.
-                kh = ICE_CONDUCTIVITY / max(ice0 / ice_volumetric_latent, 1e-4)
-                ts = -1e-6
-                for _ in range(50):
-                    q, dq = _flux(0.0, ts, True, *prm)
-                    step = (q - kh * ts) / (dq - kh)
-                    ts -= step
-                    if ts > -1e-9:
-                        ts = -1e-9
-                    if abs(step) < 1e-9:
-                        break
-                res = _flux(0.0, ts, False, *prm)
-            energy = res[0] * dt
-            if energy <= ice0:
-                ice = ice0 - energy
-            else:
-                t_end = (energy - ice0) / c
-                ice = 0.0
-        else:
-            tbar = t
-            for _ in range(30):
-                q, dq = _flux(tbar, tbar, True, *prm)
-                a = -dq if -dq > _MIN_COUPLING else _MIN_COUPLING
-                z = a * dt / c
-                phi = -expm1(-z) / z
-                k = (1.0 - phi) / (a * phi)  # T̄ − T_start = q(T̄) k for linear q
-                step = (tbar - t - q * k) / (1.0 + a * k)
-                tbar -= step
-                if abs(step) < 1e-9:
-                    break
-            if tbar < 0.0:
-                # The step would cool below freezing: hold the mean at 0 °C.
-                tbar = 0.0
-            ts = tbar
-            res = _flux(tbar, tbar, False, *prm)
-            t_end = t + res[0] * dt / c
-            if t_end < 0.0:
-                ice = -t_end * c
-                t_end = 0.0
-        t = t_end
-        if record:
-            out_mean[i] = tbar
-            out_end[i] = t_end
-            out_ice[i] = ice
-            out_frozen[i] = ice0 > 0.0 or ice > 0.0
-            for j in range(6):
-                out_terms[j][i] = res[1 + j]
-            out_makeup[i] = res[7]
-            out_surface[i] = ts
-    if not record:
-        return t, ice
-    return {
-        "water_temperature": out_mean, "water_temperature_end": out_end, "ice": out_ice,
-        "frozen": out_frozen, "lw": out_terms[0], "lat": out_terms[1],
-        "conv": out_terms[2], "grd": out_terms[3], "mkq": out_terms[4],
-        "evap": out_terms[5], "makeup": out_makeup, "surface": out_surface,
-        "t_end": t, "ice_end": ice,
-    }
-
-
 def water_temperature(forcing, pond, *, wind_height_m=10.0, upper_limit_c=None,
                       spinup_years=1):
     """Hourly pond water temperature, evaporation and heat budget.
@@ -749,9 +395,9 @@ def water_temperature(forcing, pond, *, wind_height_m=10.0, upper_limit_c=None,
     if spinup_years:
         first_year = {k: v[:steps_per_year] for k, v in columns.items()}
         for _ in range(spinup_years):
-            t0, ice0 = _integrate(first_year, t0, ice0, step_s, heat_capacity,
+            t0, ice0 = integrate_heat_balance(first_year, t0, ice0, step_s, heat_capacity,
                                   record=False)
-    run = _integrate(columns, t0, ice0, step_s, heat_capacity)
+    run = integrate_heat_balance(columns, t0, ice0, step_s, heat_capacity)
 
     step_mm = step_s  # kg m-2 s-1 × s = kg m-2 = mm
     rain_mm = inputs["rain_kg_m2_s"].to_numpy() * step_mm
