@@ -335,9 +335,10 @@ def test_greensboro_plausible(greensboro, greensboro_run):
                                   greensboro_run["water_temperature"] > 30.0)
 
 
-def test_hot_dry_summer_evaporation():
+@pytest.mark.parametrize("model", ["penman_shuttleworth", "ryan_harleman"])
+def test_hot_dry_summer_evaporation(model):
     f = _hot_dry_forcing(30)
-    pond = _pond(depth_m=0.2, ground_temperature_c=24.0)
+    pond = _pond(depth_m=0.2, ground_temperature_c=24.0, surface_transfer=model)
     out = thermal.water_temperature(f, pond)
     daily = thermal.daily_thermal_summary(out, pond)
     evaporation = daily["evaporation"].mean()
@@ -355,7 +356,8 @@ def test_hot_dry_summer_evaporation():
     rn_mj = out[["q_shortwave", "q_longwave_in", "q_longwave_out"]].sum(axis=1).mean() \
         * 86400 / 1e6
     penman = (delta * rn_mj + gamma * ea_mj) / (delta + gamma) / 2.45  # mm d-1
-    assert evaporation == pytest.approx(penman, rel=0.15)
+    if model == "penman_shuttleworth":  # the combination equation of the same wind function
+        assert evaporation == pytest.approx(penman, rel=0.15)
     # REFERENCES.md [M]: open ponds in arid climates lose ~5-10 mm/day in summer (from
     # memory). An isolated pond in a dry, hot July takes extra heat from the air (the
     # oasis effect; convection is a gain here), so this extreme month may sit up to
@@ -380,7 +382,8 @@ def test_makeup_rain_and_daily_summary():
     t_w = out["water_temperature"]
     expected = 4186.0 / 3600.0 * (out["makeup"] * (18.0 - t_w)
                                   + out["rain"] * (f["temp_air"] - t_w))
-    np.testing.assert_allclose(out["q_makeup"], expected, rtol=1e-9, atol=1e-9)
+    # (hours split into sub-steps report sub-step means of this product: within 2 %)
+    np.testing.assert_allclose(out["q_makeup"], expected, rtol=2e-2, atol=1e-3)
     assert (out["q_makeup"][rain == 0] < 0).all()
     daily = thermal.daily_thermal_summary(out, pond)
     assert len(daily) == 4

@@ -59,6 +59,70 @@ def clear_sky_emissivity_brutsaert(vapour_pressure_kpa, temp_air_c):
     return 1.24 * (e_hpa / (temp_air_c + _KELVIN)) ** (1.0 / 7.0)
 
 
+def clear_sky_emissivity_swinbank(vapour_pressure_kpa, temp_air_c):
+    """Clear-sky atmospheric emissivity of Swinbank (1963).
+
+    Parameters
+    ----------
+    vapour_pressure_kpa : float, array-like or Series [kPa]
+        Unused (the formula depends on air temperature only); kept so that every sky
+        model has one signature.
+    temp_air_c : float, array-like or Series [°C]
+
+    Returns
+    -------
+    same type [-]
+
+    Notes
+    -----
+    Swinbank's L↓ = 5.31×10⁻¹³ T⁶ W m-2 (T in K) written as an emissivity,
+    ε = 5.31×10⁻¹³ T² / σ = 9.36×10⁻⁶ T² (REFERENCES [M] for the coefficient).
+
+    References
+    ----------
+    Swinbank, W. C. (1963) Long-wave radiation from clear skies. *Q. J. R. Meteorol.
+    Soc.* 89:339-348. doi:10.1002/qj.49708938105
+    """
+    tk = np.asarray(temp_air_c, dtype=float) + _KELVIN
+    return 5.31e-13 * tk ** 2 / STEFAN_BOLTZMANN + 0.0 * np.asarray(vapour_pressure_kpa)
+
+
+def clear_sky_emissivity_idso_jackson(vapour_pressure_kpa, temp_air_c):
+    """Clear-sky atmospheric emissivity of Idso & Jackson (1969).
+
+    Parameters
+    ----------
+    vapour_pressure_kpa : float, array-like or Series [kPa]
+        Unused (air temperature only); same signature as the other sky models.
+    temp_air_c : float, array-like or Series [°C]
+
+    Returns
+    -------
+    same type [-]
+
+    Notes
+    -----
+    .. math:: ε = 1 − 0.261 \\exp[−7.77×10^{−4} (273 − T)^2],\\quad T\\ [\\mathrm{K}]
+
+    (coefficients from memory; at 0 °C ε = 0.739, rising towards 1 away from 0 °C).
+
+    References
+    ----------
+    Idso, S. B. & Jackson, R. D. (1969) Thermal radiation from the atmosphere.
+    *J. Geophys. Res.* 74:5397-5403. doi:10.1029/JC074i023p05397
+    """
+    t = np.asarray(temp_air_c, dtype=float)
+    return 1.0 - 0.261 * np.exp(-7.77e-4 * t * t) + 0.0 * np.asarray(vapour_pressure_kpa)
+
+
+#: Clear-sky emissivity models chosen by name (``[pond] sky_emissivity``).
+SKY_MODELS = {
+    "brutsaert": clear_sky_emissivity_brutsaert,
+    "swinbank": clear_sky_emissivity_swinbank,
+    "idso_jackson": clear_sky_emissivity_idso_jackson,
+}
+
+
 def cloud_fraction_crawford_duchon(ghi, ghi_clear):
     """Cloud fraction from the clearness ratio, carried through the night.
 
@@ -94,7 +158,7 @@ def cloud_fraction_crawford_duchon(ghi, ghi_clear):
     return clf
 
 
-def sky_longwave(forcing):
+def sky_longwave(forcing, model="brutsaert"):
     """Downwelling longwave irradiance on the pond surface.
 
     Parameters
@@ -103,6 +167,8 @@ def sky_longwave(forcing):
         Needs ``temp_air`` [°C] and ``relative_humidity`` [%]; uses ``ir_horizontal``
         [W m-2] where present, finite and within 50-600 W m-2; for the other hours needs
         ``ghi`` and ``ghi_clear`` [W m-2].
+    model : str, default ``"brutsaert"``
+        Clear-sky emissivity, one of :data:`SKY_MODELS`.
 
     Returns
     -------
@@ -113,9 +179,12 @@ def sky_longwave(forcing):
     -----
     Where no usable measurement exists, L↓ = ε σ T_a⁴ with the all-sky emissivity of
     Crawford & Duchon (1999, eq. 4), ε = clf + (1 − clf) ε_clear, and ε_clear from
-    Brutsaert (1975) (see :func:`clear_sky_emissivity_brutsaert` and
+    the chosen model (Brutsaert 1975, Swinbank 1963 or Idso & Jackson 1969; see
     :func:`cloud_fraction_crawford_duchon`).
     """
+    if model not in SKY_MODELS:
+        raise InputError(f"unknown sky emissivity model {model!r}; choose from "
+                         f"{', '.join(SKY_MODELS)}", field="sky_emissivity")
     t_air = forcing["temp_air"].to_numpy(dtype=float)
     ea = forcing["relative_humidity"].to_numpy(dtype=float) / 100.0 \
         * saturation_vapour_pressure(t_air)
@@ -133,7 +202,7 @@ def sky_longwave(forcing):
                              field="ghi_clear")
         clf = cloud_fraction_crawford_duchon(forcing["ghi"], forcing["ghi_clear"])
         eps = clf.to_numpy() + (1.0 - clf.to_numpy()) \
-            * clear_sky_emissivity_brutsaert(ea, t_air)
+            * SKY_MODELS[model](ea, t_air)
         formula = eps * STEFAN_BOLTZMANN * (t_air + _KELVIN) ** 4
         out[need] = formula[need]
     return pd.Series(out, index=forcing.index, name="longwave_down")

@@ -6,9 +6,11 @@ evaporates). Its heat balance follows the structure of Béchet et al. (2011):
     ρ c_p d dT/dt = q_shortwave + q_longwave_in + q_longwave_out + q_evaporation
                     + q_convection + q_ground + q_makeup + q_input
 
-with every term signed as a gain to the water [W m-2]. Latent and sensible exchange use
-the open-water Penman wind function of Shuttleworth (1993); vapour pressures, the
-psychrometric constant and the 2 m wind follow FAO-56 (Allen et al. 1998).
+with every term signed as a gain to the water [W m-2]. Latent and sensible exchange use a
+surface transfer model chosen by name (:mod:`pondsim.pond.transfer`; default the
+cooling-pond formula of Ryan, Harleman & Stolzenbach 1974) with the sensible heat by the
+Bowen ratio; the sky longwave comes from :mod:`pondsim.pond.longwave`; vapour pressures,
+the psychrometric constant and the 2 m wind follow FAO-56 (Allen et al. 1998).
 
 References
 ----------
@@ -41,9 +43,22 @@ from pondsim.pond.thermal_step import (  # noqa: F401
     WATER_HEAT_CAPACITY,
     integrate_heat_balance,
 )
-from pondsim.pond.transfer import latent_heat_vaporisation, wind_at_2m, wind_function
+from pondsim.pond.transfer import (  # noqa: F401
+    HARBECK_AREA_EXPONENT,
+    HARBECK_PREFACTOR,
+    RYAN_HARLEMAN_FREE,
+    RYAN_HARLEMAN_WIND,
+    latent_heat_vaporisation,
+    surface_transfer,
+    virtual_temperature_k,
+    wind_at_2m,
+    wind_function,
+)
 
 _KELVIN = 273.15
+#: Surface transfer model used when the pond names none (see
+#: :func:`pondsim.pond.transfer.surface_transfer` for why).
+DEFAULT_TRANSFER = "ryan_harleman"
 _REQUIRED = ("ghi", "dhi", "temp_air", "wind_speed", "relative_humidity", "pressure",
              "solar_zenith")
 _DEPTH_RANGE_M = (0.05, 1.0)
@@ -66,7 +81,8 @@ def heat_flux_terms(t_water_c, *, q_shortwave, q_longwave_in, temp_air_c,
                     vapour_pressure_kpa, wind_function_w_m2_kpa, psychrometric_kpa_c,
                     ground_temperature_c, ground_conductance_w_m2_k, makeup_temperature_c,
                     rain_kg_m2_s, heat_input_w_m2=0.0, water_emissivity=WATER_EMISSIVITY,
-                    t_surface_c=None):
+                    free_convection_w_m2_kpa_k13=0.0, virtual_temperature_air_k=None,
+                    pressure_kpa=101.3, t_surface_c=None):
     """Heat flux terms of the pond surface for a given water temperature.
 
     Parameters
@@ -81,7 +97,8 @@ def heat_flux_terms(t_water_c, *, q_shortwave, q_longwave_in, temp_air_c,
     vapour_pressure_kpa : [kPa]
         Actual vapour pressure of the air.
     wind_function_w_m2_kpa : [W m-2 kPa-1]
-        From :func:`wind_function`.
+        Forced (wind-driven) transfer, from
+        :func:`pondsim.pond.transfer.surface_transfer`.
     psychrometric_kpa_c : [kPa °C-1]
     ground_temperature_c : [°C]
     ground_conductance_w_m2_k : [W m-2 K-1]
@@ -90,6 +107,13 @@ def heat_flux_terms(t_water_c, *, q_shortwave, q_longwave_in, temp_air_c,
         Rain rate (1 kg m-2 = 1 mm).
     heat_input_w_m2 : [W m-2], default 0
     water_emissivity : [-], default 0.97
+    free_convection_w_m2_kpa_k13 : [W m-2 kPa-1 K-1/3], default 0
+        Free-convection coefficient (Ryan et al. 1974); 0 for none.
+    virtual_temperature_air_k : [K], optional
+        Virtual temperature of the air; needed when the free-convection coefficient
+        is not 0.
+    pressure_kpa : [kPa], default 101.3
+        Air pressure, for the virtual temperature of saturated air at the surface.
     t_surface_c : float or array-like, optional [°C]
         Temperature of the exchanging surface when it differs from the water (the
         surface of an ice cover); default *t_water_c*.
@@ -107,8 +131,10 @@ def heat_flux_terms(t_water_c, *, q_shortwave, q_longwave_in, temp_air_c,
     :func:`latent_heat_vaporisation`:
 
     - q_longwave_out = −ε_w σ (T_w + 273.15)⁴
-    - q_evaporation = −f (e_s(T_w) − e_a) (Shuttleworth 1993); E = −q_evaporation/λ,
-      negative (condensation) when the air's vapour pressure exceeds e_s(T_w)
+    - f = f_forced + f_free max(T_v,s − T_v,a, 0)^(1/3), T_v,s the virtual temperature
+      of saturated air at the surface (see :mod:`pondsim.pond.transfer`)
+    - q_evaporation = −f (e_s(T_w) − e_a); E = −q_evaporation/λ, negative
+      (condensation) when the air's vapour pressure exceeds e_s(T_w)
     - q_convection = −f γ (T_w − T_a): the same transfer coefficient scaled by the
       Bowen ratio, free of the 0/0 of the ratio form
     - q_ground = −G (T_w − T_g)
@@ -130,6 +156,14 @@ def heat_flux_terms(t_water_c, *, q_shortwave, q_longwave_in, temp_air_c,
     ts = t if t_surface_c is None else a(t_surface_c, dtype=float)
     es = saturation_vapour_pressure(ts)
     f = np.asarray(wind_function_w_m2_kpa, dtype=float)
+    c_free = np.asarray(free_convection_w_m2_kpa_k13, dtype=float)
+    if np.any(c_free > 0):
+        if virtual_temperature_air_k is None:
+            raise InputError("virtual_temperature_air_k is needed with free convection",
+                             field="virtual_temperature_air_k")
+        tvs = virtual_temperature_k(ts, es, pressure_kpa)
+        f = f + c_free * np.cbrt(np.maximum(tvs - np.asarray(virtual_temperature_air_k,
+                                                             dtype=float), 0.0))
     latent = f * (es - vapour_pressure_kpa)
     evap = latent / (latent_heat_vaporisation(ts) * 1e6)
     makeup = np.maximum(evap - rain_kg_m2_s, 0.0)
@@ -241,7 +275,11 @@ def heat_exchange_inputs(forcing, pond, *, wind_height_m=10.0):
     pond : object
         With ``depth_m`` and optionally ``ground_temperature_c``,
         ``ground_conductance_w_m2_k``, ``makeup_temperature_c``, ``heat_input_w_m2``,
-        ``water_emissivity``, ``refractive_index`` (None or absent → defaults).
+        ``water_emissivity``, ``refractive_index``, ``area_m2`` [m2, one pond],
+        ``surface_transfer`` (model name, default ``"ryan_harleman"``), its coefficients
+        ``harbeck_prefactor``, ``harbeck_area_exponent``, ``ryan_harleman_wind_w_m2_hpa``,
+        ``free_convection_w_m2_hpa_k13``, and ``sky_emissivity`` (None or absent →
+        defaults).
     wind_height_m : float, default 10 [m]
 
     Returns
@@ -273,17 +311,31 @@ def heat_exchange_inputs(forcing, pond, *, wind_height_m=10.0):
         rain = forcing["precipitation"].fillna(0.0).to_numpy(dtype=float) / step_s
     else:
         rain = np.zeros(n)
+    p_kpa = forcing["pressure"].to_numpy(dtype=float) / 1000.0
+    forced, free = surface_transfer(
+        str(_pond_value(pond, "surface_transfer", DEFAULT_TRANSFER)), u2,
+        area_m2=float(_pond_value(pond, "area_m2", 1000.0)),
+        harbeck_prefactor=float(_pond_value(pond, "harbeck_prefactor", HARBECK_PREFACTOR)),
+        harbeck_exponent=float(_pond_value(pond, "harbeck_area_exponent",
+                                           HARBECK_AREA_EXPONENT)),
+        ryan_harleman_wind=float(_pond_value(pond, "ryan_harleman_wind_w_m2_hpa",
+                                             RYAN_HARLEMAN_WIND)),
+        free_convection_coefficient=float(_pond_value(
+            pond, "free_convection_w_m2_hpa_k13", RYAN_HARLEMAN_FREE)))
     q_sw = transmitted_shortwave(forcing["ghi"].to_numpy(dtype=float),
                                  forcing["dhi"].to_numpy(dtype=float),
                                  forcing["solar_zenith"].to_numpy(dtype=float), n_ref)
     data = {
         "q_shortwave": q_sw,
-        "q_longwave_in": eps * sky_longwave(forcing).to_numpy(),
+        "q_longwave_in": eps * sky_longwave(
+            forcing, str(_pond_value(pond, "sky_emissivity", "brutsaert"))).to_numpy(),
         "temp_air_c": t_air,
         "vapour_pressure_kpa": ea,
-        "wind_function_w_m2_kpa": wind_function(u2),
-        "psychrometric_kpa_c": psychrometric_constant(
-            forcing["pressure"].to_numpy(dtype=float) / 1000.0),
+        "wind_function_w_m2_kpa": forced,
+        "free_convection_w_m2_kpa_k13": np.full(n, free),
+        "virtual_temperature_air_k": virtual_temperature_k(t_air, ea, p_kpa),
+        "pressure_kpa": p_kpa,
+        "psychrometric_kpa_c": psychrometric_constant(p_kpa),
         "ground_temperature_c": np.full(n, t_ground),
         "ground_conductance_w_m2_k": np.full(
             n, float(_pond_value(pond, "ground_conductance_w_m2_k", GROUND_CONDUCTANCE))),
@@ -360,7 +412,10 @@ def water_temperature(forcing, pond, *, wind_height_m=10.0, upper_limit_c=None,
     solved by Newton's method; then T_1 = T_0 + q(T̄) Δt / C, so the reported flux terms
     (evaluated at T̄) close the energy budget exactly. The scheme is exact for a linear
     flux, tends to the Crank-Nicolson rule for small z and to the quasi-steady
-    temperature for large z, and does not oscillate. Against a 1-minute RK4 reference on
+    temperature for large z, and does not oscillate. A step in which the temperature
+    changes by more than 2 K (shallow ponds in the morning) is split into up to 8 equal
+    sub-steps, since the flux (free convection's cube root, e_s(T)) is then far from
+    linear over it; the step reports the sub-steps' means. Against a 1-minute RK4 reference on
     synthetic diurnal forcing, the step-mean temperature differs by less than 0.1 K at
     depths 0.05-1 m (tests/test_thermal.py).
 
