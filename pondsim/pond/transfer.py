@@ -250,7 +250,7 @@ def free_convection(delta_tv_k, coefficient=RYAN_HARLEMAN_FREE):
 
 
 #: Surface transfer models chosen by name (``[pond] surface_transfer``).
-TRANSFER_MODELS = ("harbeck", "ryan_harleman", "penman_shuttleworth")
+TRANSFER_MODELS = ("ryan_harleman", "harbeck", "penman_shuttleworth")
 
 
 def surface_transfer(model, u2, *, area_m2=1000.0, harbeck_prefactor=HARBECK_PREFACTOR,
