@@ -11,6 +11,7 @@ import xarray as xr
 from pondsim.glossary import CAUTION, RESULTS
 from pondsim.operations.engine import HOURS_PER_DAY
 from pondsim.operations.harvest import season_of_day
+from pondsim.pond.stress import STRESS_COLUMNS
 
 
 def _attrs(name: str) -> dict:
@@ -54,7 +55,11 @@ def build_dataset(daily, drivers, hourly_sets, scenario, meta: dict, *,
                 values.append(np.full(n_days, np.nan))
                 continue
             v = h[column].to_numpy(dtype=float).reshape(n_days, HOURS_PER_DAY)
-            values.append((v.sum(axis=1) if how == "sum" else v.mean(axis=1)) * scale)
+            if how == "sum":  # over the known hours; a day without any stays NaN
+                day = np.where(np.isnan(v).all(axis=1), np.nan, np.nansum(v, axis=1))
+            else:
+                day = v.mean(axis=1)
+            values.append(day * scale)
         values = np.stack(values)
         if n_years == 1:
             return ("day",), values[0]
@@ -93,6 +98,9 @@ def build_dataset(daily, drivers, hourly_sets, scenario, meta: dict, *,
                 "long_name": "rain falling on the pond", "units": "mm d-1"}),
             "ghi_daily": forcing_var("ghi_daily", "ghi", "sum", 3600e-6, attrs={
                 "long_name": "daily global horizontal irradiation", "units": "MJ m-2 d-1"}),
+            **{name: forcing_var(name, name, "sum", attrs={
+                "long_name": meaning + " (nominal strain)", "units": "h d-1"})
+               for name, meaning in STRESS_COLUMNS.items()},
         },
         coords={
             "policy": list(policy_names),

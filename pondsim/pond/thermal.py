@@ -293,7 +293,8 @@ def heat_exchange_inputs(forcing, pond, *, wind_height_m=10.0):
     Defaults: ground temperature = mean of ``temp_air`` over the forcing (the deep-soil
     temperature approaches the annual mean air temperature; common practice); makeup
     temperature = ground temperature (water drawn from a well or buried main); missing
-    ``precipitation`` → no rain.
+    ``precipitation`` (or a missing value) → no rain in the balance (the output's
+    ``rain`` column says "no data", NaN).
     """
     _check_inputs(forcing, pond)
     t_air = forcing["temp_air"].to_numpy(dtype=float)
@@ -386,7 +387,9 @@ def water_temperature(forcing, pond, *, wind_height_m=10.0, upper_limit_c=None,
         - ``surface_temperature`` [°C]: of the exchanging surface, the water's or, under
           ice, that of the ice surface;
         - ``evaporation`` [mm per step]: negative when vapour condenses on cold water;
-        - ``rain`` [mm per step]; ``makeup`` [mm per step] = max(evaporation − rain, 0);
+        - ``rain`` [mm per step], NaN ("no data") where the forcing has no
+          ``precipitation`` value; ``makeup`` [mm per step] = max(evaporation − rain,
+          0), rain counted as 0 where unknown (the makeup is then an upper bound);
         - ``q_*`` [W m-2, gains positive, step means] — see :func:`heat_flux_terms`;
         - ``ice`` [J m-2]: latent heat store of ice at the end of the step, ≥ 0;
         - ``frozen`` [bool]: ice present during the step;
@@ -455,7 +458,11 @@ def water_temperature(forcing, pond, *, wind_height_m=10.0, upper_limit_c=None,
     run = integrate_heat_balance(columns, t0, ice0, step_s, heat_capacity)
 
     step_mm = step_s  # kg m-2 s-1 × s = kg m-2 = mm
-    rain_mm = inputs["rain_kg_m2_s"].to_numpy() * step_mm
+    if "precipitation" in forcing.columns:  # NaN where the file does not know
+        rain_mm = inputs["rain_kg_m2_s"].to_numpy() * step_mm
+        rain_mm[np.isnan(forcing["precipitation"].to_numpy(dtype=float))] = np.nan
+    else:
+        rain_mm = np.full(len(forcing), np.nan)
     t_mean = np.asarray(run["water_temperature"])
     out = pd.DataFrame({
         "water_temperature": t_mean,
@@ -503,7 +510,8 @@ def daily_thermal_summary(df, pond):
     pandas.DataFrame
         Indexed by local midnight, columns ``water_temperature_mean``,
         ``water_temperature_min``, ``water_temperature_max`` [°C, of step means],
-        ``evaporation`` [mm d-1], ``rain`` [mm d-1], ``makeup_m3`` [m3 d-1 for the farm,
+        ``evaporation`` [mm d-1], ``rain`` [mm d-1, over the hours with a known value;
+        NaN for a day without any], ``makeup_m3`` [m3 d-1 for the farm,
         area_m2 × count], ``freezing_hours`` [h], ``hours_above_limit`` [h].
         ``attrs`` holds totals over the record: ``evaporation_mm``, ``rain_mm``,
         ``makeup_m3``, ``freezing_hours``, ``hours_above_limit`` and ``days``.
@@ -517,14 +525,14 @@ def daily_thermal_summary(df, pond):
         "water_temperature_min": temp.min(),
         "water_temperature_max": temp.max(),
         "evaporation": grouped["evaporation"].sum(),
-        "rain": grouped["rain"].sum(),
+        "rain": grouped["rain"].sum(min_count=1),
         "makeup_m3": grouped["makeup"].sum() / 1000.0 * farm_area,
         "freezing_hours": grouped["frozen"].sum().astype(float) * step_h,
         "hours_above_limit": grouped["above_limit"].sum().astype(float) * step_h,
     })
     out.attrs.update({
         "evaporation_mm": float(out["evaporation"].sum()),
-        "rain_mm": float(out["rain"].sum()),
+        "rain_mm": float(out["rain"].sum(min_count=1)),
         "makeup_m3": float(out["makeup_m3"].sum()),
         "freezing_hours": float(out["freezing_hours"].sum()),
         "hours_above_limit": float(out["hours_above_limit"].sum()),

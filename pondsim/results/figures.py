@@ -45,11 +45,12 @@ def _style(i):
 
 
 def weather_figure(table: pd.DataFrame, water: pd.DataFrame, forcing: pd.DataFrame,
-                   title: str, path) -> Path:
-    """Monthly light, air vs water temperature, evaporation and the energy budget."""
+                   title: str, path, stress: bool = False) -> Path:
+    """Monthly light, air vs water temperature, evaporation, the energy budget, rain and
+    (with *stress*: the table has the stress-hour columns) heat and cold stress hours."""
     months = table.index[:-1]
     x = np.arange(len(months))
-    fig, axes = plt.subplots(2, 2, figsize=(12, 8), constrained_layout=True)
+    fig, axes = plt.subplots(3, 2, figsize=(12, 11.5), constrained_layout=True)
     fig.suptitle(f"{title}: weather, light and pond water")
 
     ax = axes[0, 0]
@@ -113,6 +114,42 @@ def weather_figure(table: pd.DataFrame, water: pd.DataFrame, forcing: pd.DataFra
     ax.set_title("Monthly energy budget (gains up, losses down)")
     ax.legend(fontsize=7, ncol=4, loc="upper center", bbox_to_anchor=(0.5, -0.07),
               frameon=False)
+
+    ax = axes[2, 0]
+    rain = table["rain mm"].iloc[:-1].to_numpy(dtype=float)
+    ax.bar(x, np.nan_to_num(rain), color=COLORS[0])
+    if np.isnan(rain).all():
+        ax.set_yticks([])
+        ax.text(0.5, 0.5, "no rain data in the weather file\n(makeup water counts no rain)",
+                ha="center", va="center", transform=ax.transAxes, fontsize=10)
+    else:
+        for i in np.flatnonzero(np.isnan(rain)):
+            ax.text(x[i], 0, "no\ndata", ha="center", va="bottom", fontsize=7)
+        ax.set_ylim(bottom=0)
+    ax.set_xticks(x, months)
+    ax.set_ylabel("rain [mm month$^{-1}$]")
+    ax.set_title("Rain on the pond" + (" (the weather file has none)"
+                                       if np.isnan(rain).all() else ""))
+
+    ax = axes[2, 1]
+    if stress:
+        from pondsim.results.tables import STRESS_LABELS
+
+        names = {"h > Topt": "above optimum", "h > Tmax": "above maximum",
+                 "h < Tmin": "below minimum"}
+        for i, label in enumerate(STRESS_LABELS.values()):
+            ax.bar(x + (i - 1) * 0.27, table[label].iloc[:-1], 0.27,
+                   color=COLORS[(i + 3) % len(COLORS)], hatch=["", "//", ".."][i],
+                   label=f"water {names[label]} temperature")
+        ax.set_xticks(x, months)
+        ax.set_ylim(bottom=0)
+        ax.set_ylabel("hours per month [h]")
+        ax.set_title("Heat and cold stress of the strain")
+        ax.legend(fontsize=8, loc="upper left")
+    else:
+        ax.axis("off")
+        ax.text(0.5, 0.5, "stress hours need a strain:\nrun `pondsim weather` on a "
+                "scenario", ha="center", va="center", fontsize=10)
     return _save(fig, path)
 
 
