@@ -61,6 +61,8 @@ NORMALS = {
     "relative_humidity_pct": ("mean relative humidity", "%", 1.0, 100.0),
     "clearness": ("mean daily GHI / clear-sky daily GHI", "1", 0.2, 1.0),
     "ghi_kwh_m2_d": ("mean daily global horizontal insolation", "kWh m-2 d-1", 0.0, 12.0),
+    "precipitation_mm": ("mean monthly precipitation (synthetic weather only)", "mm",
+                         0.0, 2000.0),
 }
 _REQUIRED_NORMALS = ("temp_max_c", "temp_min_c", "wind_speed_m_s", "relative_humidity_pct")
 
@@ -69,25 +71,36 @@ _REQUIRED_NORMALS = ("temp_max_c", "temp_min_c", "wind_speed_m_s", "relative_hum
 #: c = lag of the minimum after sunrise [h].
 PARTON_LOGAN_150CM = {"a": 1.86, "b": 2.20, "c": -0.17}
 
-#: Daily clearness of the three weather classes of the synthetic generator, relative to
-#: the day's clear-sky insolation [1]. Equal spacing makes the mean linear in the class
-#: mix (see :func:`_class_probabilities`); chosen for pondsim.
-CLASS_CLEARNESS = (1.0, 0.6, 0.2)
+#: Daily clearness of the overcast class relative to the month's mean clearness K:
+#: c2 = clip(K - OVERCAST_BELOW_MEAN, *OVERCAST_RANGE); the partly cloudy class sits
+#: half-way to clear sky (c1 = (1 + c2)/2), clear days at 1. Overcast days so tied to
+#: the month's climate keep a hot desert's worst summer days at ~0.3-0.5 of clear sky,
+#: as in real records: pvlib's Greensboro and Miami files have no May-August day below
+#: 0.34 and 0.41 of clear sky (9.3 and 9.8 MJ m-2 d-1), measured for pondsim.
+OVERCAST_BELOW_MEAN = 0.4
+OVERCAST_RANGE = (0.15, 0.5)
 #: Half-width of the uniform within-class spread of daily clearness (clear days: none).
-CLASS_SPREAD = (0.0, 0.1, 0.1)
+CLASS_SPREAD = (0.0, 0.1, 0.05)
 #: Probability of keeping yesterday's class before the stationary redraw; gives a lag-1
 #: autocorrelation of the class of about this value (chosen; daily clearness index
 #: autocorrelations of ~0.2–0.4 are typical, from memory).
 CLASS_PERSISTENCE = 0.3
 #: Daily Tmax / Tmin anomaly per unit of clearness anomaly [degC]: clear days warmer
-#: maxima, cooler minima (chosen for pondsim; signs after Richardson 1981).
-TEMP_MAX_PER_CLEARNESS = 10.0
-TEMP_MIN_PER_CLEARNESS = -4.0
+#: maxima, cooler minima, cloudy days cooler on the whole (chosen for pondsim; signs
+#: after Richardson 1981).
+TEMP_MAX_PER_CLEARNESS = 14.0
+TEMP_MIN_PER_CLEARNESS = -3.0
 #: AR(1) residuals of daily Tmax and Tmin: lag-1 coefficient, SD [degC], and the
-#: correlation of the two innovations (chosen, of the order Richardson 1981 reports).
-TEMP_AR1 = 0.65
-TEMP_RESIDUAL_SD_C = 1.5
-TEMP_INNOVATION_CORR = 0.5
+#: correlation of the two innovations (chosen so that daily mean temperature anomalies
+#: have a lag-1 autocorrelation of ~0.7 and an SD of ~2-3 K, as pvlib's TMY files do:
+#: 0.61-0.77 and 2.1-4.0 K about a 31-day running mean, measured for pondsim).
+TEMP_AR1 = 0.78
+TEMP_RESIDUAL_SD_C = 2.6
+TEMP_INNOVATION_CORR = 0.7
+#: Synthetic rain: chance that an overcast / partly cloudy day is wet, and the local
+#: hours over which a wet day's rain falls (afternoon showers; chosen for pondsim).
+WET_CHANCE = {2: 0.6, 1: 0.12}
+RAIN_HOURS = (14, 15, 16)
 #: Smallest diurnal range kept after adding anomalies [degC].
 MIN_DIURNAL_RANGE_C = 2.0
 
@@ -411,14 +424,32 @@ def _daily_temperature(index, n_days, rise, sset, tx, tn):
     return _match_daily_extremes(temp, day, tx, tn)
 
 
+def class_clearness(clearness):
+    """Daily clearness of the (clear, partly cloudy, overcast) classes of each month.
+
+    Parameters
+    ----------
+    clearness : array-like [1]
+        Mean clearness of each month.
+
+    Returns
+    -------
+    ndarray, shape (..., 3) [1]
+        ``(1, (1 + c2)/2, c2)`` with ``c2 = clip(K - OVERCAST_BELOW_MEAN, *OVERCAST_RANGE)``.
+    """
+    k = np.asarray(clearness, dtype=float)
+    c2 = np.clip(k - OVERCAST_BELOW_MEAN, *OVERCAST_RANGE)
+    return np.stack([np.ones_like(c2), 0.5 * (1.0 + c2), c2], axis=-1)
+
+
 def _class_probabilities(clearness):
     """Stationary class probabilities (clear, partly, overcast) for a mean clearness.
 
     A binomial mix ``((1-s)^2, 2s(1-s), s^2)`` over the equally spaced class clearness
-    values of :data:`CLASS_CLEARNESS` has mean ``c0 - 2 s (c0 - c1)``, so
+    values of :func:`class_clearness` has mean ``c0 - 2 s (c0 - c1)``, so
     ``s = (c0 - K) / (c0 - c2)``.
     """
-    c0, _, c2 = CLASS_CLEARNESS
+    c0, _, c2 = np.moveaxis(class_clearness(clearness), -1, 0)
     s = np.clip((c0 - np.asarray(clearness, dtype=float)) / (c0 - c2), 0.0, 1.0)
     return np.stack([(1 - s) ** 2, 2 * s * (1 - s), s ** 2], axis=-1)
 
@@ -465,30 +496,37 @@ def daily_clearness_chain(month_of_day, clearness, rng, n_series=1):
             cls[:, 0] = fresh
         else:
             cls[:, d] = np.where(keep[:, d], cls[:, d - 1], fresh)
-    centre = np.asarray(CLASS_CLEARNESS)[cls]
-    k = centre + np.asarray(CLASS_SPREAD)[cls] * spread_u
+    centres = class_clearness(clearness)[month_of_day - 1]  # (n_days, 3)
+    centre = np.take_along_axis(np.broadcast_to(centres, (n_series,) + centres.shape),
+                                cls[..., None], axis=-1)[..., 0]
+    k = np.minimum(centre + np.asarray(CLASS_SPREAD)[cls] * spread_u, 1.0)
     return k, cls
 
 
 def _match_monthly(k, h0, month_of_day, kmon):
-    """Scale each month's daily clearness so the insolation-weighted mean is the target,
-    keeping every day at or below clear sky (clipped days fixed, the rest rescaled)."""
+    """Scale each month's cloudiness so the insolation-weighted mean clearness is the
+    target: every day's deficit 1 − k is multiplied by one factor per month, so clear
+    days stay clear and the adjustment is shared by all cloudy days (none is pushed to
+    near darkness), with no day below the month's overcast floor minus its spread."""
     k = k.copy()
+    floor = class_clearness(kmon)[:, 2] - CLASS_SPREAD[2]
     for m in range(1, 13):
         sel = month_of_day == m
         w = h0[sel]
-        km = k[sel]
+        deficit = 1.0 - k[sel]
         target = kmon[m - 1] * w.sum()
-        for _ in range(20):
-            capped = km >= 1.0
-            free = (km * w)[~capped].sum()
-            if free <= 0:
-                break
-            km = np.where(capped, 1.0, km * (target - w[capped].sum()) / free)
-            km = np.minimum(km, 1.0)
-            if abs((km * w).sum() - target) < 1e-9 * target:
-                break
-        k[sel] = km
+        lo_k = min(floor[m - 1], k[sel].min())
+
+        def mean_for(f, deficit=deficit, w=w, lo_k=lo_k):
+            return (np.clip(1.0 - f * deficit, lo_k, 1.0) * w).sum()
+
+        lo, hi = 0.0, 1.0
+        while mean_for(hi) > target and hi < 1e3:
+            hi *= 2.0
+        for _ in range(60):  # bisection: the weighted mean falls as f grows
+            mid = 0.5 * (lo + hi)
+            lo, hi = (mid, hi) if mean_for(mid) > target else (lo, mid)
+        k[sel] = np.clip(1.0 - 0.5 * (lo + hi) * deficit, lo_k, 1.0)
     return k
 
 
@@ -506,6 +544,48 @@ def _temperature_anomalies(k, kmon_day, rng):
     dk = k - kmon_day
     return (TEMP_MAX_PER_CLEARNESS * dk + eps[:, 0],
             TEMP_MIN_PER_CLEARNESS * dk + eps[:, 1])
+
+
+def synthetic_rain(cls, month_of_day, precipitation_mm, rng):
+    """Hourly rain [mm h-1] on the cloudy days of a synthetic year.
+
+    Parameters
+    ----------
+    cls : ndarray of int, (n_days,)
+        Daily weather class (0 clear, 1 partly cloudy, 2 overcast).
+    month_of_day : ndarray of int (1..12), (n_days,)
+    precipitation_mm : array-like, 12 values [mm per month]
+        Monthly normal.
+    rng : numpy.random.Generator
+
+    Returns
+    -------
+    ndarray, (24 n_days,) [mm h-1]
+
+    Notes
+    -----
+    A day of class c is wet with chance :data:`WET_CHANCE` [c] (clear days stay dry); a
+    wet day's depth is exponential, its mean chosen so that the month's expected total,
+    given the month's drawn classes, is the normal (the wet-day occurrence /
+    exponential-amount structure of Richardson 1981); it falls evenly over
+    :data:`RAIN_HOURS`. Months whose draw has no
+    cloudy day stay dry, as a real dry month does.
+    """
+    cls = np.asarray(cls, dtype=int)
+    month_of_day = np.asarray(month_of_day, dtype=int)
+    chance = np.select([cls == 2, cls == 1], [WET_CHANCE[2], WET_CHANCE[1]], 0.0)
+    wet = rng.random(len(cls)) < chance
+    amount = rng.exponential(1.0, len(cls))
+    daily = np.zeros(len(cls))
+    for m in range(1, 13):
+        sel = month_of_day == m
+        n_wet = float(chance[sel].sum())  # expected wet days given the month's classes
+        if n_wet > 0:
+            daily[sel] = np.where(wet[sel], amount[sel], 0.0) \
+                * float(precipitation_mm[m - 1]) / n_wet
+    hourly = np.zeros((len(cls), 24))
+    hourly[:, list(RAIN_HOURS)] = daily[:, None] / len(RAIN_HOURS)
+    return hourly.ravel()
 
 
 def synthetic_weather(*, latitude, longitude, elevation_m, utc_offset_h, normals, seed,
@@ -549,8 +629,8 @@ def synthetic_weather(*, latitude, longitude, elevation_m, utc_offset_h, normals
     month_of_day = np.asarray(index.month[::24])
     h0 = _clearsky_daily(index, lat, lon, elev, pressure)
     kmon, kind = _monthly_clearness(nrm, h0, month_of_day, source)
-    k, _ = daily_clearness_chain(month_of_day, kmon, rng)
-    k = k[0]
+    k, cls = daily_clearness_chain(month_of_day, kmon, rng)
+    k, cls = k[0], cls[0]
     if match_monthly:
         k = _match_monthly(k, h0, month_of_day, kmon)
     m = month_of_day - 1
@@ -566,6 +646,10 @@ def synthetic_weather(*, latitude, longitude, elevation_m, utc_offset_h, normals
     df, meta = _finish(index, lat, lon, elev, pressure, temp, rh, wind, np.repeat(k, 24),
                        name, notes, "synthetic", year, off,
                        str(source) if source else "normals")
+    if "precipitation_mm" in nrm:
+        df["precipitation"] = synthetic_rain(cls, month_of_day, nrm["precipitation_mm"],
+                                             rng)
+        meta["notes"][0] += "; rain on cloudy days to the monthly normal in expectation"
     meta["seed"] = seed
     return df, meta
 
