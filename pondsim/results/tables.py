@@ -67,7 +67,8 @@ def monthly_forcing_table(forcing: pd.DataFrame, par, water: pd.DataFrame,
     [mol m-2 d-1], air temperature mean, mean daily max, mean daily min [degC], wind
     [m s-1], relative humidity [%], water temperature mean [degC], evaporation
     [mm d-1], rain [mm per month; NaN = no data in the weather file], makeup water for
-    the farm [m3 per month; unknown rain counted as none], and with *stress* (from
+    the farm [m3 per month: the thermal stage's hourly max(evaporation - rain, 0),
+    unknown rain counted as none], and with *stress* (from
     :func:`pondsim.pond.stress.monthly_stress_hours`) the hours with the water above the
     strain's optimum and maximum and below its minimum [h per month].
     """
@@ -77,6 +78,7 @@ def monthly_forcing_table(forcing: pd.DataFrame, par, water: pd.DataFrame,
         "ghi": forcing["ghi"].to_numpy() / 1000.0,  # Wh -> kWh per hour
         "par": np.asarray(par, dtype=float) * 3600e-6,  # umol m-2 s-1 over 1 h -> mol m-2
         "evap": water["evaporation"].to_numpy(),
+        "makeup": water["makeup"].to_numpy(),
     }, index=day).groupby(level=0).sum()
     rain_h = water["rain"].to_numpy() if "rain" in water else np.full(len(idx), np.nan)
     daily["rain"] = pd.Series(rain_h, index=day).groupby(level=0).sum(min_count=1)
@@ -86,7 +88,8 @@ def monthly_forcing_table(forcing: pd.DataFrame, par, water: pd.DataFrame,
     month = pd.DatetimeIndex(daily.index).month
     by_m = daily.groupby(month)
     hour_m = idx.month
-    makeup_mm = (daily["evap"] - daily["rain"].fillna(0.0)).clip(lower=0.0)
+    # hour by hour (rain beyond an hour's evaporation overflows), as the thermal stage
+    makeup_mm = daily["makeup"]
     table = pd.DataFrame({
         "GHI kWh/m2/d": by_m["ghi"].mean(),
         "PAR mol/m2/d": by_m["par"].mean(),
