@@ -16,7 +16,7 @@ from weather_fixtures import (
 )
 
 from pondsim.errors import InputError
-from pondsim.forcing import climate
+from pondsim.forcing import climate, synthetic
 from pondsim.forcing.weather import REQUIRED_COLUMNS, read_weather
 
 REPO = Path(__file__).resolve().parents[1]
@@ -199,13 +199,13 @@ def test_site_latitude_without_sunrise():
 # --------------------------------------------------------------------------- synthetic
 @pytest.fixture(scope="module")
 def synth():
-    return climate.synthetic_weather(**DESERT_SITE, normals=DESERT_NORMALS, seed=11)
+    return synthetic.synthetic_weather(**DESERT_SITE, normals=DESERT_NORMALS, seed=11)
 
 
 def test_synthetic_same_seed_same_table(synth):
-    again, _ = climate.synthetic_weather(**DESERT_SITE, normals=DESERT_NORMALS, seed=11)
+    again, _ = synthetic.synthetic_weather(**DESERT_SITE, normals=DESERT_NORMALS, seed=11)
     pd.testing.assert_frame_equal(synth[0], again)
-    other, _ = climate.synthetic_weather(**DESERT_SITE, normals=DESERT_NORMALS, seed=12)
+    other, _ = synthetic.synthetic_weather(**DESERT_SITE, normals=DESERT_NORMALS, seed=12)
     assert not np.allclose(other["ghi"], synth[0]["ghi"])
     assert not np.allclose(other["temp_air"], synth[0]["temp_air"])
     assert list(synth[0].columns) == COLUMNS and synth[1]["seed"] == 11
@@ -232,17 +232,17 @@ def test_markov_chain_expected_monthly_clearness():
     # 1.5 % of the normal (the chain's stationary mix is built to match it)
     rng = np.random.default_rng(5)
     month = pd.date_range("2025-01-01", "2025-12-31", freq="D").month.to_numpy()
-    k, cls = climate.daily_clearness_chain(month, DESERT_NORMALS["clearness"], rng, 400)
+    k, cls = synthetic.daily_clearness_chain(month, DESERT_NORMALS["clearness"], rng, 400)
     monthly = np.array([k[:, month == m].mean() for m in range(1, 13)])
     np.testing.assert_allclose(monthly, DESERT_NORMALS["clearness"], rtol=0.015)
     # class persistence: lag-1 autocorrelation of the class close to CLASS_PERSISTENCE
     c = cls[:, 120:240].astype(float)      # May-Aug
     a, b = c[:, :-1].ravel(), c[:, 1:].ravel()
-    assert np.corrcoef(a, b)[0, 1] == pytest.approx(climate.CLASS_PERSISTENCE, abs=0.05)
+    assert np.corrcoef(a, b)[0, 1] == pytest.approx(synthetic.CLASS_PERSISTENCE, abs=0.05)
 
 
 def test_synthetic_match_monthly_exact():
-    df, meta = climate.synthetic_weather(**DESERT_SITE, normals=DESERT_NORMALS, seed=3,
+    df, meta = synthetic.synthetic_weather(**DESERT_SITE, normals=DESERT_NORMALS, seed=3,
                                          match_monthly=True)
     np.testing.assert_allclose(_monthly_clearness(df), DESERT_NORMALS["clearness"],
                                rtol=0.005)
@@ -332,7 +332,7 @@ def test_synthetic_desert_year_day_to_day_like_real_records(seed):
     doc = tomllib.loads((REPO / "weather" / "kestrel_flats_normals.toml").read_text())
     site = {k: doc["site"][k] for k in ("latitude", "longitude", "elevation_m",
                                         "utc_offset_h")}
-    df, _ = climate.synthetic_weather(**site, normals=doc["normals"], seed=seed,
+    df, _ = synthetic.synthetic_weather(**site, normals=doc["normals"], seed=seed,
                                       match_monthly=True)
     k, ghi_mj, anomaly = _daily_stats(df)
     summer = pd.DatetimeIndex(k.index).month.isin([5, 6, 7, 8])
@@ -359,7 +359,7 @@ def test_synthetic_rain_to_monthly_normal_in_expectation():
     normals = dict(DESERT_NORMALS, precipitation_mm=[20.0] * 6 + [40.0] * 6)
     totals = []
     for seed in range(12):
-        df, meta = climate.synthetic_weather(**DESERT_SITE, normals=normals, seed=seed)
+        df, meta = synthetic.synthetic_weather(**DESERT_SITE, normals=normals, seed=seed)
         totals.append(df["precipitation"].groupby(df.index.month).sum().to_numpy())
         # rain falls only on cloudy days, at plausible hourly depths (weather reader range)
         assert df["precipitation"].between(0.0, 200.0).all()
