@@ -99,8 +99,14 @@ def test_implausible_precipitation_record_is_no_data():
     # pvlib's Greensboro TMY3: 3 hours of 300-500 mm and wet hours averaging 19.8 mm h-1
     # (7,045 mm a year, several times the site's rainfall): the record is not hourly rain
     df, meta = read_weather(os.path.join(PVLIB_DATA, "723170TYA.CSV"))
-    assert df["precipitation"].isna().all()
+    assert "precipitation" not in df
     assert any("not a plausible hourly record" in n for n in meta["notes"])
+    water = thermal.water_temperature(df.iloc[: 24 * 31], _pond(), spinup_years=0)
+    assert water["rain"].isna().all()
+    # pvlib's Sand Point TMY3: precipitation missing in 8,037 of 8,760 hours: no record
+    df, meta = read_weather(os.path.join(PVLIB_DATA, "703165TY.csv"))
+    assert "precipitation" not in df
+    assert any("precipitation dropped (no data): missing in" in n for n in meta["notes"])
 
 
 def test_rain_column_missing_from_forcing_keeps_thermal_running():

@@ -354,14 +354,19 @@ def _assemble(raw: RawWeather, path: Path, site: dict, year, max_gap_h) -> tuple
             if wet.sum() >= 50 and np.nanmean(v[wet]) > PRECIP_WET_HOUR_MAX_MM:
                 # every hour may be possible while the record is not: a mean over the
                 # wet hours this high means the values are not hourly depths
-                notes.append(f"precipitation set to missing (no data): its wet hours "
+                notes.append(f"precipitation dropped (no data): its wet hours "
                              f"average {np.nanmean(v[wet]):.1f} mm h-1 (> "
                              f"{PRECIP_WET_HOUR_MAX_MM:g}), {np.nansum(v):,.0f} mm in all, "
                              "not a plausible hourly record")
-                data[col] = np.nan
+                data = data.drop(columns=col)
                 continue
             n_nan = int(data[col].isna().sum())
-            if n_nan:
+            if 2 * n_nan > len(data):
+                # mostly unknown: no rain record at all ("no data"), not a sparse one
+                notes.append(f"precipitation dropped (no data): missing in {n_nan} of "
+                             f"{len(data)} hours")
+                data = data.drop(columns=col)
+            elif n_nan:
                 notes.append(f"precipitation missing (no data) in {n_nan} hours")
             continue
         v, filled, too_long = _fill_column(data[col].to_numpy(), int(max_gap_h), typical)
@@ -460,7 +465,9 @@ def read_weather(path, *, fmt="auto", latitude=None, longitude=None, elevation_m
     them. ``ir_horizontal`` with long gaps or out of range is dropped with a note;
     impossible ``precipitation`` hours (outside 0-200 mm) are set to missing and, like
     the file's own gaps, stay missing (NaN, "no data", not interpolated) with a count
-    in the notes; the rest of the record is kept. Source time conventions
+    in the notes; the rest of the record is kept. A precipitation record missing in more
+    than half of its hours, or whose wet hours average more than 10 mm h-1 (not hourly
+    depths), is dropped with a note (no data). Source time conventions
     are normalised at the boundary; see the module docstring.
     """
     path = Path(path)
