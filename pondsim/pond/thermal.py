@@ -416,7 +416,7 @@ def water_temperature(forcing, pond, *, wind_height_m=10.0, upper_limit_c=None,
     (evaluated at T̄) close the energy budget exactly. The scheme is exact for a linear
     flux, tends to the Crank-Nicolson rule for small z and to the quasi-steady
     temperature for large z, and does not oscillate. A step in which the temperature
-    changes by more than 2 K (shallow ponds in the morning) is split into up to 8 equal
+    changes by more than 4 K (shallow ponds in the morning) is split into up to 8 equal
     sub-steps, since the flux (free convection's cube root, e_s(T)) is then far from
     linear over it; the step reports the sub-steps' means. Against a 1-minute RK4 reference on
     synthetic diurnal forcing, the step-mean temperature differs by less than 0.1 K at

@@ -31,7 +31,7 @@ GROUND_CONDUCTANCE = 1.5
 
 #: A step whose water temperature changes by more than this [K] is split into equal
 #: sub-steps (at most MAX_SUBSTEPS) so that the flux stays nearly linear over each.
-SUBSTEP_K = 2.0
+SUBSTEP_K = 4.0
 MAX_SUBSTEPS = 8
 _MIN_COUPLING = 1e-3  # W m-2 K-1, guards the exponential weights against a = 0
 _KELVIN = 273.15
