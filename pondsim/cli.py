@@ -16,6 +16,35 @@ from pondsim.errors import InputError
 EXIT_INPUT = 2
 
 
+def add_strict_option(parser) -> None:
+    """``--strict``: refuse a run whose site disagrees with its weather."""
+    parser.add_argument("--strict", action="store_true",
+                        help="refuse to run when the site check fails (scenario site vs "
+                        "the weather file's header, or the data's solar noon); default: "
+                        "warn (weather.site_check)")
+
+
+def load_checked_scenario(args):
+    """The scenario of ``args.scenario``, in strict site-check mode under ``--strict``."""
+    import dataclasses
+
+    from pondsim.scenario import load_scenario
+
+    scenario = load_scenario(args.scenario)
+    if getattr(args, "strict", False):
+        scenario = scenario.replace(weather=dataclasses.replace(scenario.weather,
+                                                                site_check="strict"))
+    return scenario
+
+
+def print_site_check(meta_or_attrs) -> None:
+    """The site check's line of the terminal summary."""
+    text = meta_or_attrs.get("site_check")
+    if text:
+        flag = "WARNING: " if str(text).startswith("FAILED") else ""
+        print(f"{flag}site check {text}")
+
+
 def _parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(
         prog="pondsim",
@@ -53,6 +82,8 @@ def _parser() -> argparse.ArgumentParser:
     r.add_argument("--members", type=int, help="stochastic members per policy")
     r.add_argument("--seed", type=int, help="seed of the random streams")
     r.add_argument("--no-plots", action="store_true", help="skip the figures")
+    for parser in (w, r):
+        add_strict_option(parser)
 
     c = sub.add_parser("compare", help="compare harvest policies and plans by season",
                        description="Run every policy and season plan of the scenario with "
@@ -64,6 +95,7 @@ def _parser() -> argparse.ArgumentParser:
     c.add_argument("--seed", type=int, help="seed of the random streams")
     c.add_argument("--out", default=None, metavar="DIR",
                    help="output folder (default: out/<scenario name>-compare)")
+    add_strict_option(c)
 
     o = sub.add_parser("outlook", help="P50/P90 annual yield over weather years, "
                        "sensitivity and the inputs bill",
@@ -83,6 +115,7 @@ def _parser() -> argparse.ArgumentParser:
     o.add_argument("--no-sensitivity", action="store_true", help="skip the Sobol indices")
     o.add_argument("--out", default=None, metavar="DIR",
                    help="output folder (default: out/<scenario name>-outlook)")
+    add_strict_option(o)
 
     t = sub.add_parser("tune", help="tune the harvest rule of each season",
                        description="Search fixed-fraction, threshold and fixed-interval "
@@ -98,6 +131,7 @@ def _parser() -> argparse.ArgumentParser:
     t.add_argument("--no-refine", action="store_true", help="grid search only")
     t.add_argument("--out", default=None, metavar="DIR",
                    help="output folder (default: out/<scenario name>-tune)")
+    add_strict_option(t)
 
     from pondsim.report.build import add_report_parser
     from pondsim.studies.calibrate import add_fit_parser
@@ -112,27 +146,90 @@ def _parser() -> argparse.ArgumentParser:
     return p
 
 
+class Terminated(KeyboardInterrupt):
+    """SIGTERM, raised where the program is, so that it unwinds like Ctrl-C (outputs
+    being written are discarded whole)."""
+
+
+def _on_sigterm(signum, frame):
+    raise Terminated()
+
+
 def main(argv: list[str] | None = None) -> int:
+    import signal
+
     args = _parser().parse_args(argv)
+    try:
+        previous = signal.signal(signal.SIGTERM, _on_sigterm)
+    except ValueError:  # not the main thread (e.g. called from a worker thread)
+        previous = None
     try:
         commands = {"weather": cmd_weather, "run": cmd_run, "compare": cmd_compare,
                     "outlook": cmd_outlook, "tune": cmd_tune, "fit": cmd_fit,
                     "screen": cmd_screen, "report": cmd_report, "keys": cmd_keys}
+        check_arguments(args)
         return commands[args.command](args)
     except InputError as err:
         print(f"pondsim: error: {err}", file=sys.stderr)
         return EXIT_INPUT
+    except MemoryError:
+        print("pondsim: error: not enough memory for this run; use fewer members, weather "
+              "years or draws (--members, --years, --draws, run.members)", file=sys.stderr)
+        return EXIT_INPUT
+    except Terminated:
+        print("pondsim: terminated; no output set was written", file=sys.stderr)
+        return 128 + signal.SIGTERM
     except KeyboardInterrupt:
-        print("pondsim: interrupted", file=sys.stderr)
+        print("pondsim: interrupted; no output set was written", file=sys.stderr)
         return 130
     except BrokenPipeError:  # output piped into e.g. `head`, which closed early
         sys.stderr.close()
         return 0
+    finally:
+        if previous is not None:
+            signal.signal(signal.SIGTERM, previous)
+
+
+#: Command-line values checked before anything runs: flag -> (low, high), whole numbers.
+WHOLE_NUMBER_FLAGS = {"members": (1, 1_000_000), "years": (1, 100_000),
+                      "draws": (1, 100_000), "workers": (1, 4096), "seed": (0, 2**63 - 1),
+                      "year": (1, 9999)}
+
+
+def check_arguments(args) -> None:
+    """The same one-line error as the scenario checks for a bad command-line value
+    (a negative --seed, --members 0, a NaN coordinate, ...)."""
+    import math
+
+    for name, (low, high) in WHOLE_NUMBER_FLAGS.items():
+        value = getattr(args, name, None)
+        if value is not None and not low <= value <= high:
+            raise InputError(f"{value} is out of range; allowed: a whole number in "
+                             f"[{low}, {high}]", field=f"--{name}")
+    for name, low, high in (("latitude", -90, 90), ("longitude", -180, 180),
+                            ("elevation", -500, 6000), ("utc_offset", -14, 14)):
+        value = getattr(args, name, None)
+        if value is not None and not (math.isfinite(value) and low <= value <= high):
+            raise InputError(f"{value} is out of range; allowed: a number in [{low}, "
+                             f"{high}]", field=f"--{name.replace('_', '-')}")
+    out = getattr(args, "out", None)
+    if out is not None and not str(out).strip():
+        raise InputError("empty output folder name", field="--out")
+
+
+def _check_out_first(folder) -> None:
+    """Check an output folder before a command that writes its own files computes."""
+    from pondsim.results.files import check_output_folder, clean_output_folder
+
+    clean_output_folder(check_output_folder(folder))
 
 
 def cmd_fit(args) -> int:
     from pondsim.studies.calibrate import cmd_fit as run_fit
 
+    if getattr(args, "observations", None) and not getattr(args, "demo", False):
+        _check_out_first(Path(args.out) if getattr(args, "out", None) else
+                         Path("out") / f"{Path(args.observations).stem}_fit")
     return run_fit(args)
 
 
@@ -145,6 +242,7 @@ def cmd_screen(args) -> int:
 def cmd_report(args) -> int:
     from pondsim.report.build import cmd_report as run_report
 
+    _check_out_first(_out_dir(args, "-report"))
     return run_report(args)
 
 
@@ -158,11 +256,12 @@ def cmd_keys(args) -> int:
 def _forcing_for(args):
     """(forcing, meta, pond, scenario-or-None) for `pondsim weather`."""
     from pondsim.operations.simulate import load_forcing
-    from pondsim.scenario import SCHEMA, Pond, load_scenario
+    from pondsim.scenario import SCHEMA, Pond
 
     source = Path(args.source)
     if source.suffix.lower() == ".toml":
-        scenario = load_scenario(source)
+        args.scenario = source
+        scenario = load_checked_scenario(args)
         forcing, meta = load_forcing(scenario)
         return forcing, meta, scenario.pond, scenario
     from pondsim.forcing.weather import read_weather
@@ -170,6 +269,11 @@ def _forcing_for(args):
     forcing, meta = read_weather(source, latitude=args.latitude, longitude=args.longitude,
                                  elevation_m=args.elevation, utc_offset_h=args.utc_offset,
                                  year=args.year)
+    from pondsim.forcing.sitecheck import record_site_check
+
+    record_site_check(forcing, meta, {"latitude": args.latitude, "longitude": args.longitude,
+                                      "utc_offset_h": args.utc_offset},
+                      strict=args.strict, path=source)
     key = SCHEMA["pond"]["depth_m"]
     if not key.low <= args.depth <= key.high:
         raise InputError(f"{args.depth:g} m is out of range; allowed [{key.low:g}, "
@@ -182,8 +286,14 @@ def _forcing_for(args):
 def cmd_weather(args) -> int:
     from pondsim.glossary import CAUTION
     from pondsim.pond import light, thermal
+    from pondsim.results.files import OutputError, check_output_folder
     from pondsim.results.tables import monthly_forcing_table
 
+    if args.plot:  # checked before reading the weather
+        if Path(args.plot).is_dir():
+            raise OutputError("--plot names a folder; give a file name such as "
+                              "weather.png", path=args.plot, field="--plot")
+        check_output_folder(Path(args.plot).parent)
     forcing, meta, pond, scenario = _forcing_for(args)
     lt = scenario.light if scenario else None
     par = light.par_at_surface(forcing, par_fraction=lt.par_fraction if lt else None,
@@ -205,8 +315,10 @@ def cmd_weather(args) -> int:
     print(f"{title}  (lat {meta.get('latitude'):.3f}, lon {meta.get('longitude'):.3f}, "
           f"{meta.get('elevation_m', float('nan')):.0f} m, UTC{meta.get('utc_offset_h'):+g} h)"
           f"  pond depth {pond.depth_m:g} m, farm {pond.farm_area_m2:,.0f} m2")
+    print_site_check(meta)
     for note in meta.get("notes", []):
-        print(f"  note: {note}")
+        if not note.startswith("site check"):  # printed just above
+            print(f"  note: {note}")
     print()
     print(table.to_string(float_format=lambda v: f"{v:,.1f}", na_rep="no data"))
     if stress is not None:
@@ -233,6 +345,23 @@ def cmd_weather(args) -> int:
     return 0
 
 
+def _out_dir(args, suffix: str) -> Path:
+    return Path(args.out) if args.out else Path("out") / f"{Path(args.scenario).stem}{suffix}"
+
+
+def _output_set(args, command: str, suffix: str, seed):
+    """The command's output set; the folder is checked here, before any computation."""
+    from pondsim.results.files import OutputSet
+
+    return OutputSet(_out_dir(args, suffix), command=command, seed=seed,
+                     scenario=args.scenario)
+
+
+def _print_written(files, written) -> None:
+    print("\nwritten: " + ", ".join(str(files.final(p)) for p in written)
+          + f" (run {files.run_id}; README.txt, pondsim-manifest.json)")
+
+
 def cmd_run(args) -> int:
     import numpy as np
     import pandas as pd
@@ -241,24 +370,29 @@ def cmd_run(args) -> int:
     from pondsim.operations.simulate import simulate
     from pondsim.results.files import save, write_csv
     from pondsim.results.tables import monthly_pond_water, policy_summary
-    from pondsim.scenario import load_scenario
 
-    _check_members(args.members)
-    scenario = load_scenario(args.scenario)
-    out = Path(args.out) if args.out else Path("out") / Path(args.scenario).stem
-    t0 = time.perf_counter()
-    ds = simulate(scenario, members=args.members, seed=args.seed)
-    elapsed = time.perf_counter() - t0
-    summary = policy_summary(ds)
-    water = monthly_pond_water(ds)
-    out.mkdir(parents=True, exist_ok=True)
-    save(ds, out / "results.nc")
-    write_csv(summary, out / "summary.csv")
-    write_csv(water, out / "pond_water_monthly.csv")
+    scenario = load_checked_scenario(args)
+    seed = scenario.run.seed if args.seed is None else args.seed
+    with _output_set(args, "run", "", seed) as files:
+        t0 = time.perf_counter()
+        ds = simulate(scenario, members=args.members, seed=seed)
+        elapsed = time.perf_counter() - t0
+        summary = policy_summary(ds)
+        water = monthly_pond_water(ds)
+        files.notes["site_check"] = ds.attrs["site_check"]
+        written = [save(ds, files.dir / "results.nc"),
+                   write_csv(summary, files.dir / "summary.csv"),
+                   write_csv(water, files.dir / "pond_water_monthly.csv")]
+        if not args.no_plots:
+            from pondsim.results.figures import run_figures
+
+            written += run_figures(ds, files.dir)
     print(f"{scenario.study_name}: {ds.attrs['site']}, {scenario.year}, "
           f"{scenario.pond.count} x {scenario.pond.area_m2:,.0f} m2 ponds at "
           f"{scenario.pond.depth_m:g} m, strain {scenario.strain.name} "
-          f"({ds.sizes['member']} member(s), {elapsed:.1f} s)\n")
+          f"({ds.sizes['member']} member(s), {elapsed:.1f} s)")
+    print_site_check(ds.attrs)
+    print()
     cols = ["yield_t_ha_yr", "productivity_g_m2_d", "harvests", "mean_density_g_m3",
             "crashes", "efficiency_par_pct", "efficiency_solar_pct"]
     labels = ["yield t/ha/yr", "g/m2/d", "harvests", "mean g/m3", "crashes",
@@ -289,49 +423,45 @@ def cmd_run(args) -> int:
         print("  hours above Tmax by month: " + ", ".join(
             f"{pd.Timestamp(2000, int(m), 1):%b} {months.loc[m, 'hours_above_t_max']:.0f}"
             for m in hot))
-    written = [out / "results.nc", out / "summary.csv", out / "pond_water_monthly.csv"]
-    if not args.no_plots:
-        from pondsim.results.figures import run_figures
-
-        written += run_figures(ds, out)
-    print("\nwritten: " + ", ".join(str(p) for p in written))
+    _print_written(files, written)
     print("\n" + CAUTION)
     return 0
-
-
-def _check_members(n):
-    _check_count(n, "--members", high=1_000_000)
 
 
 def cmd_compare(args) -> int:
     from pondsim.glossary import CAUTION
     from pondsim.operations.simulate import crash_model_of, simulate
     from pondsim.results.files import save, write_csv
-    from pondsim.scenario import load_scenario
     from pondsim.studies.compare import best_by_season, risk_calendar, season_table
 
-    _check_members(args.members)
-    scenario = load_scenario(args.scenario)
+    scenario = load_checked_scenario(args)
     members = args.members or max(scenario.run.members, 200)
+    seed = scenario.run.seed if args.seed is None else args.seed
     crash = crash_model_of(scenario)
     if crash is None:
         from pondsim.operations.crash import CrashModel
 
         crash = CrashModel()  # for the calendar only; no crashes are drawn
-    out = Path(args.out) if args.out else Path("out") / f"{Path(args.scenario).stem}-compare"
-    t0 = time.perf_counter()
-    ds = simulate(scenario, members=members, seed=args.seed)
-    elapsed = time.perf_counter() - t0
-    table = season_table(ds)
-    limit = scenario.crash.max_season_probability
-    best = best_by_season(table, limit)
-    calendar = risk_calendar(ds, crash)
-    out.mkdir(parents=True, exist_ok=True)
-    written = [save(ds, out / "results.nc"), write_csv(table, out / "comparison.csv"),
-               write_csv(best, out / "best_by_season.csv"),
-               write_csv(calendar, out / "risk_calendar.csv", index=False)]
+    with _output_set(args, "compare", "-compare", seed) as files:
+        t0 = time.perf_counter()
+        ds = simulate(scenario, members=members, seed=seed)
+        elapsed = time.perf_counter() - t0
+        table = season_table(ds)
+        limit = scenario.crash.max_season_probability
+        best = best_by_season(table, limit)
+        calendar = risk_calendar(ds, crash)
+        files.notes["site_check"] = ds.attrs["site_check"]
+        out = files.dir
+        written = [save(ds, out / "results.nc"), write_csv(table, out / "comparison.csv"),
+                   write_csv(best, out / "best_by_season.csv"),
+                   write_csv(calendar, out / "risk_calendar.csv", index=False)]
+        from pondsim.results.figures import compare_figures
+
+        written += compare_figures(ds, table, crash, out)
     print(f"{scenario.study_name}: {len(ds['policy'])} policies/plans x {members} members, "
-          f"{elapsed:.1f} s\n")
+          f"{elapsed:.1f} s")
+    print_site_check(ds.attrs)
+    print()
     view = table[["yield_t_ha", "yield_t_ha_p10", "yield_t_ha_p90", "productivity_g_m2_d",
                   "harvests", "harvest_volume_m3", "mean_density_g_m3", "expected_crashes",
                   "p_crash", "days_at_risk", "biomass_lost_g_m2"]].copy()
@@ -346,66 +476,54 @@ def cmd_compare(args) -> int:
     if len(calendar):
         print("\nsteepest falls of K (risk calendar, median member X/K):")
         print(calendar.to_string(index=False, float_format=lambda v: f"{v:,.2f}"))
-    from pondsim.results.figures import compare_figures
-
-    written += compare_figures(ds, table, crash, out)
-    print("\nwritten: " + ", ".join(str(p) for p in written))
+    _print_written(files, written)
     print("\nCrash parameters are assumptions unless replaced by the site's own history.")
     print("\n" + CAUTION)
     return 0
 
 
-def _check_count(value, flag, high=100000):
-    if value is not None and not 1 <= value <= high:
-        raise InputError(f"{value} is out of range; allowed: a whole number in "
-                         f"[1, {high:d}]", field=flag)
-
-
 def cmd_outlook(args) -> int:
     from pondsim.glossary import CAUTION
     from pondsim.results.files import save, write_csv
-    from pondsim.scenario import load_scenario
-    from pondsim.studies.inputs_bill import bill_from_results
+    from pondsim.studies.bill import describe as describe_bill
+    from pondsim.studies.bill import scenario_bill
     from pondsim.studies.outlook import annual_table, monthly_bands, run_outlook, sensitivity
 
-    _check_count(args.years, "--years")
-    _check_count(args.draws, "--draws")
-    _check_members(args.members)
-    scenario = load_scenario(args.scenario)
+    scenario = load_checked_scenario(args)
     unc = scenario.uncertainty
     n_years = args.years or unc.weather_years
     n_draws = (args.draws or unc.draws) if unc.parameters else 1
     seed = scenario.run.seed if args.seed is None else args.seed
-    out = Path(args.out) if args.out else Path("out") / f"{Path(args.scenario).stem}-outlook"
-    t0 = time.perf_counter()
-    ds, meta = run_outlook(scenario, n_years=n_years, n_draws=n_draws,
-                           members=args.members, seed=seed)
-    annual = annual_table(ds, scenario.pond.farm_area_m2)
-    bands = monthly_bands(ds)
-    best = annual["P50_t_ha_yr"].idxmax()
-    sens = None
-    if unc.parameters and not args.no_sensitivity:
-        print(f"Sobol sensitivity of '{best}': {unc.sobol_samples} x "
-              f"{len(unc.parameters) + 2} runs ...", flush=True)
-        sens = sensitivity(scenario, best, n=unc.sobol_samples, seed=seed)
-    quiet = ds.copy()
-    for name in ("evaporation", "rain"):
-        if "member" in ds[name].dims:
-            quiet[name] = ds[name].mean("member")
-    import numpy as np
+    with _output_set(args, "outlook", "-outlook", seed) as files:
+        t0 = time.perf_counter()
+        ds, meta = run_outlook(scenario, n_years=n_years, n_draws=n_draws,
+                               members=args.members, seed=seed)
+        annual = annual_table(ds, scenario.pond.farm_area_m2)
+        bands = monthly_bands(ds)
+        best = annual["P50_t_ha_yr"].idxmax()
+        sens = None
+        if unc.parameters and not args.no_sensitivity:
+            print(f"Sobol sensitivity of '{best}': {unc.sobol_samples} x "
+                  f"{len(unc.parameters) + 2} runs ...", flush=True)
+            sens = sensitivity(scenario, best, n=unc.sobol_samples, seed=seed)
+        bill = scenario_bill(ds, scenario, best)
+        elapsed = time.perf_counter() - t0
+        files.notes["site_check"] = ds.attrs.get("site_check", "not run")
+        out = files.dir
+        written = [save(ds, out / "results.nc"), write_csv(annual, out / "annual_yield.csv"),
+                   write_csv(bands, out / "monthly_bands.csv"),
+                   write_csv(bill.monthly, out / "inputs_bill.csv"),
+                   write_csv(bill.lines, out / "inputs_bill_lines.csv")]
+        if bill.cost_per_t is not None:
+            written.append(write_csv(bill.cost_per_t, out / "inputs_cost_per_t.csv"))
+        if sens is not None:
+            written.append(write_csv(sens, out / "sensitivity.csv"))
+        from pondsim.results.figures import outlook_figures
 
-    rain = quiet["rain"].values  # NaN = no data: counted as no rain (makeup upper bound)
-    bill = bill_from_results(quiet, policy=best, rain_mm_daily=None if np.isnan(rain).all()
-                             else np.nan_to_num(rain))
-    elapsed = time.perf_counter() - t0
-    out.mkdir(parents=True, exist_ok=True)
-    written = [save(ds, out / "results.nc"), write_csv(annual, out / "annual_yield.csv"),
-               write_csv(bands, out / "monthly_bands.csv"),
-               write_csv(bill, out / "inputs_bill.csv")]
-    if sens is not None:
-        written.append(write_csv(sens, out / "sensitivity.csv"))
+        written += outlook_figures(ds, bands, sens, out)
     print(f"{scenario.study_name}: {n_years} weather years x {n_draws} parameter draws x "
           f"{args.members} crash replicate(s), {elapsed:.1f} s")
+    print_site_check(ds.attrs)
     for note in meta.get("notes", [])[-1:]:
         print(f"  note: {note}")
     print()
@@ -419,14 +537,8 @@ def cmd_outlook(args) -> int:
         print("\nSobol indices of annual yield (first order, total):")
         for name, r in sens.iterrows():
             print(f"  {name:>24}: {r['first_order']:.2f}  {r['total']:.2f}")
-    yr = bill.loc["year"]
-    print(f"\ninputs bill for '{best}' (farm, per year): biomass {yr['biomass_t']:,.1f} t, "
-          f"CO2 {yr['co2_t']:,.1f} t, N {yr['n_t']:,.2f} t, P {yr['p_t']:,.2f} t, makeup "
-          f"water {yr['makeup_water_m3']:,.0f} m3, mixing {yr['mixing_MWh']:,.1f} MWh")
-    from pondsim.results.figures import outlook_figures
-
-    written += outlook_figures(ds, bands, sens, out)
-    print("\nwritten: " + ", ".join(str(p) for p in written))
+    print("\n" + describe_bill(bill))
+    _print_written(files, written)
     print("\nSynthetic weather years resample the typical year: they spread the weather but "
           "cannot hold years worse than the record.")
     print("\n" + CAUTION)
@@ -434,44 +546,47 @@ def cmd_outlook(args) -> int:
 
 
 def cmd_tune(args) -> int:
+    import tomllib
+
     from pondsim.glossary import CAUTION
     from pondsim.operations.simulate import simulate
     from pondsim.results.files import write_csv
-    from pondsim.scenario import load_scenario, relocate_text
+    from pondsim.scenario import parse_scenario, relocate_text
     from pondsim.studies.compare import best_by_season, season_table
     from pondsim.studies.outlook import weather_years
     from pondsim.studies.tune import describe, tune_scenario, tuned_scenario_text, write_text
 
-    _check_count(args.years, "--years")
-    _check_members(args.members)
-    scenario = load_scenario(args.scenario)
+    scenario = load_checked_scenario(args)
     n_years = args.years or min(scenario.uncertainty.weather_years, 8)
     seed = scenario.run.seed if args.seed is None else args.seed
-    out = Path(args.out) if args.out else Path("out") / f"{Path(args.scenario).stem}-tune"
-    t0 = time.perf_counter()
-    plan, table = tune_scenario(scenario, n_years=n_years, members=args.members, seed=seed,
-                                refine=not args.no_refine, progress=scenario.run.progress)
-    names = [p.name for p in scenario.policies] + [p.name for p in scenario.plans]
-    out.mkdir(parents=True, exist_ok=True)
-    original = relocate_text(Path(args.scenario).read_text(encoding="utf-8"), scenario, out)
-    text, plan_name = tuned_scenario_text(original, scenario.seasons, plan, names)
-    tuned_path = out / f"{Path(args.scenario).stem}_tuned.toml"
-    write_text(tuned_path, text)
-    # Check the written file and compare the tuned plan with the original policies on
-    # fresh crash draws (a different seed from the tuning).
-    tuned = load_scenario(tuned_path)
-    years, meta = weather_years(tuned, n_years, seed)
-    ds = simulate(tuned, members=args.members, seed=seed + 1, forcing=(years[0], meta),
-                  weather_years=years, progress=False)
-    seasons = season_table(ds)
-    limit = scenario.crash.max_season_probability
-    best = best_by_season(seasons, limit)
-    elapsed = time.perf_counter() - t0
-    written = [tuned_path, write_csv(table, out / "tuned_plan.csv"),
-               write_csv(seasons, out / "tuned_comparison.csv")]
+    with _output_set(args, "tune", "-tune", seed) as files:
+        t0 = time.perf_counter()
+        plan, table = tune_scenario(scenario, n_years=n_years, members=args.members,
+                                    seed=seed, refine=not args.no_refine,
+                                    progress=scenario.run.progress)
+        names = [p.name for p in scenario.policies] + [p.name for p in scenario.plans]
+        original = relocate_text(Path(args.scenario).read_text(encoding="utf-8"), scenario,
+                                 files.folder)
+        text, plan_name = tuned_scenario_text(original, scenario.seasons, plan, names)
+        tuned_path = write_text(files.dir / f"{Path(args.scenario).stem}_tuned.toml", text)
+        # Check the written file (as it will read from the output folder) and compare the
+        # tuned plan with the original policies on fresh crash draws (another seed).
+        tuned = parse_scenario(tomllib.loads(tuned_path.read_text(encoding="utf-8")),
+                               files.final(tuned_path))
+        years, meta = weather_years(tuned, n_years, seed)
+        ds = simulate(tuned, members=args.members, seed=seed + 1, forcing=(years[0], meta),
+                      weather_years=years, progress=False)
+        seasons = season_table(ds)
+        limit = scenario.crash.max_season_probability
+        best = best_by_season(seasons, limit)
+        elapsed = time.perf_counter() - t0
+        files.notes["site_check"] = meta.get("site_check", "not run")
+        written = [tuned_path, write_csv(table, files.dir / "tuned_plan.csv"),
+                   write_csv(seasons, files.dir / "tuned_comparison.csv")]
     print(f"{scenario.study_name}: tuned over {n_years} weather years x {args.members} crash "
-          f"replicates, {elapsed:.1f} s\n")
-    print(f"tuned plan (risk limit P(>= 1 crash) <= {limit:.0%} per season):")
+          f"replicates, {elapsed:.1f} s")
+    print_site_check(meta)
+    print(f"\ntuned plan (risk limit P(>= 1 crash) <= {limit:.0%} per season):")
     for season, p in zip(scenario.seasons, plan, strict=True):
         r = table.loc[season.name]
         flag = "" if r["within_risk_limit"] else "  [limit not met: least risky found]"
@@ -481,8 +596,8 @@ def cmd_tune(args) -> int:
           + ", ".join(f"{p}: {float(annual.sel(policy=p)):.1f}" for p in ds["policy"].values))
     print("best per season on fresh draws: "
           + ", ".join(f"{s}: {r['best_policy']}" for s, r in best.iterrows()))
-    print(f"\nrun it: pondsim compare {tuned_path}")
-    print("written: " + ", ".join(str(p) for p in written))
+    print(f"\nrun it: pondsim compare {files.final(tuned_path)}")
+    _print_written(files, written)
     print("\n" + CAUTION)
     return 0
 

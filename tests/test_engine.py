@@ -197,3 +197,28 @@ def test_ledger_catches_an_imbalance():
                                            "lost", "final")}
     with pytest.raises(LedgerError):
         check_closure(ledger)
+
+
+def test_daily_gross_growth_and_respiration_close_the_day_by_day_balance():
+    # The per-day terms are the ledger's terms day by day: for every day,
+    # density(d) = density(d-1) + inoculated + grown - respired - removed - lost
+    # (mass balance of the culture, the ledger identity applied to one day).
+    n_days = 40
+    par = diurnal_par(n_days, peak=1900.0)
+    ft, m = diurnal_temp_factor(n_days)
+    d = drivers(par, temp_factor=ft, maintenance=m, mu_max=1.4, light_param=320.0,
+                k_biomass=0.15, k_background=3.0, growth_form="self_shading")
+    out = integrate(d, rules(2, n_days, code=RULE_CODES["fixed_fraction"],
+                             fraction=np.array([0.1, 0.3])), OPERATION)
+    assert out.grown.shape == out.respired.shape == (2, n_days)
+    np.testing.assert_allclose(out.grown.sum(axis=1), out.ledger["grown"], rtol=1e-12)
+    np.testing.assert_allclose(out.respired.sum(axis=1), out.ledger["respired"],
+                               rtol=1e-12)
+    previous = np.concatenate([np.zeros((2, 1)), out.density[:, :-1]], axis=1)
+    inoculated = np.zeros((2, n_days))
+    inoculated[:, 0] = OPERATION.inoculum_g_m3
+    balance = previous + inoculated + out.grown - out.respired - out.removed - out.lost
+    np.testing.assert_allclose(balance, out.density, rtol=1e-9, atol=1e-9)
+    assert np.all(out.grown >= 0) and np.all(out.respired >= 0)
+    # dark hours respire, light hours grow: both terms are present every day
+    assert np.all(out.respired[:, 1:] > 0) and np.all(out.grown[:, 1:] > 0)

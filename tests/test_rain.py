@@ -118,3 +118,24 @@ def test_rain_column_missing_from_forcing_keeps_thermal_running():
     water = thermal.water_temperature(f, _pond(), spinup_years=0)
     assert water["rain"].iloc[:24].isna().all()
     np.testing.assert_allclose(water["rain"].iloc[24:], 1.0)
+
+
+def test_bill_makeup_is_thermal_makeup_plus_harvest_and_blowdown(rainy):
+    # makeup water = evaporation - rain (hour by hour, where known) + unreturned harvest
+    # water + blow-down, to rounding: the thermal stage's daily `makeup` feeds the bill
+    from test_bill import _inputs, _results, _scenario
+
+    from pondsim.studies import bill as B
+
+    (df, _), _ = rainy
+    water = thermal.water_temperature(df, _pond())
+    daily_makeup = water["makeup"].groupby(water.index.floor("D")).sum().to_numpy()
+    ds = _results()
+    ds["makeup"] = (("day",), daily_makeup)
+    inp = _inputs(water_recycle_fraction=0.8, blowdown_per_d=0.01)
+    y = B.scenario_bill(ds, _scenario(inp), "p").monthly.loc["year"]
+    farm, pond_m3, count = 5000.0, 1000 * 0.25, 5  # test_bill's pond: 5 x 1000 m2, 0.25 m
+    vol = ds["harvest_fraction"].sum("day").mean().item() * pond_m3 * count
+    expected = (water["makeup"].sum() * 1e-3 * farm + 0.2 * vol
+                + 0.01 * pond_m3 * count * 365)
+    assert y["makeup_water_m3"] == pytest.approx(expected, rel=1e-9)

@@ -45,11 +45,11 @@ def _report(argv) -> int:
 
 
 def _csv(path, index_col=None):
-    """Read a CSV output independently of pondsim (first line: the caution comment)."""
+    """Read a CSV output independently of pondsim: a plain table (header row first, no
+    comment lines; the caution is in the folder's README.txt)."""
     text = Path(path).read_text(encoding="utf-8")
-    assert text.startswith("# ")
-    return pd.read_csv(path, skiprows=1, index_col=index_col, keep_default_na=False,
-                       na_values=[""])
+    assert not text.startswith("#")
+    return pd.read_csv(path, index_col=index_col, keep_default_na=False, na_values=[""])
 
 
 class Page(HTMLParser):

@@ -16,7 +16,7 @@ import pytest
 from pondsim import load_scenario
 from pondsim.cli import main
 from pondsim.errors import InputError
-from pondsim.scenario import SCHEMA, schema_markdown
+from pondsim.scenario import INPUTS_KEYS, PRICES_KEYS, SCHEMA, schema_markdown
 
 ROOT = Path(__file__).resolve().parents[1]
 DEMO = ROOT / "scenarios" / "kestrel_flats.toml"
@@ -52,10 +52,11 @@ def test_defaults_fill_missing_keys(tmp_path):
 
 def test_readme_reference_lists_every_key():
     readme = (ROOT / "README.md").read_text()
-    for section, keys in SCHEMA.items():
+    sections = {**SCHEMA, "inputs": INPUTS_KEYS, "prices": PRICES_KEYS}
+    for section, keys in sections.items():
         for name in keys:
             assert f"`{name}`" in readme, f"README lacks [{section}] {name}"
-    assert schema_markdown().count("###") == len(SCHEMA) + 4
+    assert schema_markdown().count("###") == len(SCHEMA) + 6
 
 
 BAD_CASES = [

@@ -87,35 +87,68 @@ def _table(tmp_path, rows, header=None):
     return path
 
 
-def test_row_without_weather_is_an_error_naming_the_row(tmp_path):
+def _row_error(path, row=0) -> str:
+    """The reason a row of a site table fails (a bad row fails alone, it does not raise)."""
+    site = read_sites(path)[row]
+    assert site.error is not None, site
+    return site.error
+
+
+def test_row_without_weather_fails_alone_naming_the_row(tmp_path):
     path = _table(tmp_path, [["a", 10, 20, 0, 1, str(DEMO_EPW)], ["b", 10, 20, 0, 1, ""]])
-    with pytest.raises(InputError) as err:
-        read_sites(path)
-    assert err.value.field == "row 2 (b): weather_file"
-    assert "normals" in str(err.value)
+    assert read_sites(path)[0].error is None
+    error = _row_error(path, 1)
+    assert "field 'row 2 (b): weather_file'" in error and "normals" in error
 
 
 def test_bad_values_name_row_and_column(tmp_path):
-    with pytest.raises(InputError) as err:
-        read_sites(_table(tmp_path, [["a", 95, 20, 0, 1, str(DEMO_EPW)]]))
-    assert err.value.field == "row 1 (a): latitude"
+    assert "field 'row 1 (a): latitude'" in _row_error(
+        _table(tmp_path, [["a", 95, 20, 0, 1, str(DEMO_EPW)]]))
     table = pd.read_csv(DEMO_SITES, comment="#", dtype=str, keep_default_na=False).iloc[[0]]
     table["clearness_07"] = "1.7"  # clearness above 1 is impossible
     table.to_csv(tmp_path / "n.csv", index=False)
-    with pytest.raises(InputError) as err:
-        read_sites(tmp_path / "n.csv")
-    assert err.value.field == f"row 1 ({SUNNY}): clearness" and "Jul" in str(err.value)
+    error = _row_error(tmp_path / "n.csv")
+    assert f"field 'row 1 ({SUNNY}): clearness'" in error and "Jul" in error
     table["clearness_07"] = ""
     table.to_csv(tmp_path / "m.csv", index=False)
-    with pytest.raises(InputError, match=r"months \[7\]"):
-        read_sites(tmp_path / "m.csv")
+    assert "months [7]" in _row_error(tmp_path / "m.csv")
     with pytest.raises(InputError, match="unknown column"):
         read_sites(_table(tmp_path, [["a"]], header=["nmae"]))
-    with pytest.raises(InputError, match="used twice"):
-        read_sites(_table(tmp_path, [["a", 1, 1, 1, 1, DEMO_EPW], ["a", 1, 1, 1, 1, DEMO_EPW]]))
+    dup = tmp_path / "dup.csv"
+    _table(tmp_path, [["a", 1, 1, 1, 1, DEMO_EPW], ["a", 1, 1, 1, 1, DEMO_EPW]]).rename(dup)
+    assert read_sites(dup)[0].error is None and "used twice" in _row_error(dup, 1)
     (tmp_path / "empty").mkdir()
     with pytest.raises(InputError, match="no weather files"):
         read_sites(tmp_path / "empty")
+
+
+def test_bad_site_rows_fail_alone_and_the_rest_complete(scenario, tmp_path):
+    """Each kind of bad row (impossible coordinate, text for a number, a missing month,
+    no weather at all, a duplicate name) fails that site only, listed with its reason,
+    while the good rows are simulated and ranked."""
+    table = pd.read_csv(DEMO_SITES, comment="#", dtype=str, keep_default_na=False)
+    good = table[table["name"] == SUNNY]
+    bad = pd.concat([good] * 5, ignore_index=True)
+    bad["name"] = ["lat 123", "lon text", "no June", "no weather", SUNNY]
+    bad.loc[0, "latitude"] = "123"
+    bad.loc[1, "longitude"] = "east"
+    bad.loc[2, "temp_max_c_06"] = ""
+    for col in [c for c in bad.columns if c[-3:-2] == "_" and c[-2:].isdigit()]:
+        bad.loc[3, col] = ""
+    pd.concat([good, bad], ignore_index=True).to_csv(tmp_path / "sites.csv", index=False)
+    report = screen(scenario, tmp_path / "sites.csv", workers=1, progress=False,
+                    out=tmp_path / "out", log=lambda msg: None, **SMALL)
+    ranking = report.ranking
+    assert list(ranking.loc[ranking["status"] == "ok", "site"]) == [SUNNY]
+    failed = report.failures.set_index("site")["error"]
+    assert len(failed) == 5
+    assert "latitude" in failed["lat 123"] and "-66.5" in failed["lat 123"]
+    assert "longitude" in failed["lon text"]
+    assert "temp_max_c_06" in failed["no June"]
+    assert "weather_file" in failed["no weather"]
+    assert "used twice" in failed[f"{SUNNY} (row 6)"]
+    on_disk = pd.read_csv(tmp_path / "out" / "failures.csv")
+    assert sorted(on_disk["site"]) == sorted(failed.index)
 
 
 def test_seeds_are_deterministic_and_distinct():
@@ -154,8 +187,9 @@ def test_serial_results_and_files(serial):
                                ds[["annual_yield", "yield_p50"]])
     assert len(list((out / "sites").glob("*.nc"))) == 3
     lines = (out / "ranking.csv").read_text().splitlines()
-    assert lines[0].startswith("# Results are estimates")
-    ranking = pd.read_csv(out / "ranking.csv", comment="#")
+    assert lines[0].startswith("rank,site,")  # a plain table; the caution is in README.txt
+    assert "Results are estimates" in (out / "README.txt").read_text()
+    ranking = pd.read_csv(out / "ranking.csv")
     assert list(ranking["rank"]) == [1, 2, 3]
     assert ranking["yield_p50_t_ha_yr"].is_monotonic_decreasing
     assert (out / "ranking.png").read_bytes()[:8] == PNG_MAGIC

@@ -146,6 +146,16 @@ def test_outlook_command_writes_tables_and_figures(tmp_path, capsys):
     annual = pd.read_csv(out / "annual_yield.csv", comment="#", index_col=0)
     assert (annual["P90_t_ha_yr"] <= annual["P50_t_ha_yr"]).all()
     bill = pd.read_csv(out / "inputs_bill.csv", comment="#", index_col=0)
-    assert bill.loc["year", "co2_t"] > bill.loc["year", "biomass_t"]  # ~1.8 t CO2 per t
+    # ~1.9 t CO2 per t of biomass taken up (Chisti 2007 formula, utilisation 0.7)
+    assert bill.loc["year", "co2_t"] > 1.8 * bill.loc["year", "uptake_biomass_t"]
+    # carbon is billed on what the ponds grew, at least the recovered product
+    assert bill.loc["year", "uptake_biomass_t"] >= bill.loc["year", "product_t"]
+    assert "total_cost_USD" in bill.columns  # the demo's (invented) prices
+    lines = pd.read_csv(out / "inputs_bill_lines.csv", comment="#", index_col=0)
+    assert lines["basis"].notna().all() and lines["source"].notna().all()
+    assert not lines["source"].str.contains("from memory").any()
+    per_t = pd.read_csv(out / "inputs_cost_per_t.csv", comment="#", index_col=0).iloc[0]
+    assert per_t["P90_USD_per_t"] <= per_t["P50_USD_per_t"] <= per_t["P10_USD_per_t"]
+    assert "conservative" in text.lower() and "cost per tonne" in text
     for name in ("exceedance.png", "monthly_bands.png"):
         assert (out / name).read_bytes()[:4] == b"\x89PNG"

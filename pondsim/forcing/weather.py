@@ -508,6 +508,8 @@ def read_weather(path, *, fmt="auto", latitude=None, longitude=None, elevation_m
         "elevation_m": site["elevation_m"], "utc_offset_h": site["utc_offset_h"],
         "source": str(path), "format": raw.fmt, "year": target,
         "typical_year": bool(typical), "n_filled": n_filled, "notes": notes,
+        # the file's own header, for the site check (pondsim.forcing.sitecheck)
+        "file_site": {k: raw.site.get(k) for k in ("latitude", "longitude", "utc_offset_h")},
     }
     return out, meta
 

@@ -80,6 +80,13 @@ def build_dataset(daily, drivers, hourly_sets, scenario, meta: dict, *,
                                  {"long_name": "share of the culture volume harvested",
                                   "units": "1"}),
             "growth_rate": (dims3, cube(daily.growth_rate), _attrs("growth_rate")),
+            "gross_growth": (dims3, cube(daily.grown) * depth,
+                             {"long_name": "gross biomass growth in the day (before "
+                              "respiration, harvest and crash losses)",
+                              "units": "g m-2 d-1"}),
+            "respiration": (dims3, cube(daily.respired) * depth,
+                            {"long_name": "biomass respired in the day (maintenance)",
+                             "units": "g m-2 d-1"}),
             "crash_loss": (dims3, cube(daily.lost) * depth,
                            {"long_name": "biomass lost to crashes", "units": "g m-2 d-1"}),
             "crashed": (dims3, cube(daily.crashed).astype(np.int8), _attrs("crashed")),
@@ -96,6 +103,9 @@ def build_dataset(daily, drivers, hourly_sets, scenario, meta: dict, *,
             "evaporation": forcing_var("evaporation", "evaporation", "sum"),
             "rain": forcing_var("rain", "rain", "sum", attrs={
                 "long_name": "rain falling on the pond", "units": "mm d-1"}),
+            "makeup": forcing_var("makeup", "makeup", "sum", attrs={
+                "long_name": "makeup water for evaporation net of rain, max(E - P, 0) "
+                             "hour by hour (unknown rain as none)", "units": "mm d-1"}),
             "ghi_daily": forcing_var("ghi_daily", "ghi", "sum", 3600e-6, attrs={
                 "long_name": "daily global horizontal irradiation", "units": "MJ m-2 d-1"}),
             **{name: forcing_var(name, name, "sum", attrs={
@@ -137,6 +147,7 @@ def build_dataset(daily, drivers, hourly_sets, scenario, meta: dict, *,
         "Conventions": "CF-1.10",
         "source": f"pondsim {_version()}",
         "weather_notes": "; ".join(str(n) for n in meta.get("notes", [])),
+        "site_check": str(meta.get("site_check", "not run")),
         "weather_years": n_years,
         "parameter_draws": n_draws,
         "replicates": reps,

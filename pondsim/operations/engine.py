@@ -125,7 +125,9 @@ class Daily:
     crashes; crashed (bool); hazard [d-1] crash hazard at the end of the day; status
     (0 growing, 1 restarting after a crash, 2 not yet inoculated); sampled [g m-3]
     density at ``Operation.sample_hour`` (None unless asked). ``ledger`` holds the
-    per-member totals [g m-3]: inoculated, grown, respired, removed, lost, final.
+    per-member totals [g m-3]: inoculated, grown, respired, removed, lost, final;
+    ``grown`` and ``respired`` [g m-3] are the same two terms per day (gross growth and
+    maintenance respiration of the day, as booked in the ledger).
     """
 
     density: np.ndarray
@@ -138,6 +140,8 @@ class Daily:
     status: np.ndarray
     ledger: dict
     sampled: np.ndarray | None = None
+    grown: np.ndarray | None = None
+    respired: np.ndarray | None = None
 
 
 def _member_view(a: np.ndarray, set_of_member: np.ndarray | None):
@@ -322,6 +326,7 @@ def integrate(drivers: Drivers, rules: HarvestRules, operation: Operation, *,
         hazard=np.zeros((n, n_days), dtype=np.float32),
         status=np.zeros((n, n_days), dtype=np.int8), ledger=totals,
         sampled=None if op.sample_hour is None else np.zeros((n, n_days)),
+        grown=np.zeros((n, n_days)), respired=np.zeros((n, n_days)),
     )
     if crash is not None:
         smooth = crash.smoothed(drivers.capacity)
@@ -331,6 +336,7 @@ def integrate(drivers: Drivers, rules: HarvestRules, operation: Operation, *,
                               else stream_of_member)
     h6 = STEP_D / 6.0
     rate_sum = np.zeros(n)
+    grown_before, respired_before = np.zeros(n), np.zeros(n)
 
     for day in range(n_days):
         # Inoculation at the start of the day: first start, and restarts after crashes.
@@ -384,6 +390,10 @@ def integrate(drivers: Drivers, rules: HarvestRules, operation: Operation, *,
             totals["respired"] += resp
         out.growth_rate[:, day] = np.where(status == STATUS_GROWING,
                                            rate_sum / HOURS_PER_DAY, 0.0)
+        # daily terms from the running ledger totals: no per-hour cost
+        out.grown[:, day] = totals["grown"] - grown_before
+        out.respired[:, day] = totals["respired"] - respired_before
+        grown_before, respired_before = totals["grown"].copy(), totals["respired"].copy()
         since += 1
         if crash is not None:
             hazard = crash.hazard(x, k_smooth(day), k_fall(day))

@@ -33,7 +33,21 @@ def load_forcing(scenario: Scenario):
             latitude=site.latitude, longitude=site.longitude, elevation_m=site.elevation_m,
             utc_offset_h=site.utc_offset_h, normals=w.normals, year=scenario.year,
             name=site.name)
-    return _one_year(forcing, scenario), meta
+    forcing = _one_year(forcing, scenario)
+    apply_site_check(forcing, meta, scenario)
+    return forcing, meta
+
+
+def apply_site_check(forcing: pd.DataFrame, meta: dict, scenario: Scenario) -> None:
+    """Check the scenario's site against its weather (:mod:`pondsim.forcing.sitecheck`),
+    recording the outcome in ``meta``; raises :class:`InputError` when it fails under
+    ``weather.site_check = 'strict'``."""
+    from pondsim.forcing.sitecheck import record_site_check
+
+    site = scenario.site
+    record_site_check(forcing, meta, {"latitude": site.latitude, "longitude": site.longitude,
+                                      "utc_offset_h": site.utc_offset_h},
+                      strict=scenario.weather.site_check == "strict", path=scenario.path)
 
 
 def _given_forcing(forcing, scenario: Scenario) -> tuple[pd.DataFrame, dict]:

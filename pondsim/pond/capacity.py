@@ -15,7 +15,12 @@ import numpy as np
 import pandas as pd
 
 from pondsim.errors import InputError
-from pondsim.pond.kinetics import _depth_average_evaluator, _SteeleAverage, jassby_platt, monod
+from pondsim.pond.light_response import (
+    _depth_average_evaluator,
+    _SteeleAverage,
+    jassby_platt,
+    monod,
+)
 
 __all__ = [
     "daily_carrying_capacity",

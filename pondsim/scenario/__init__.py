@@ -11,10 +11,12 @@ from pondsim.scenario.model import (
     Crash,
     Harvest,
     Inoculation,
+    Inputs,
     Light,
     Plan,
     Policy,
     Pond,
+    Prices,
     Run,
     Scenario,
     Season,
@@ -34,9 +36,11 @@ from pondsim.scenario.parse import (
 from pondsim.scenario.schema import (
     DEFAULT_SEASONS,
     DISTRIBUTIONS,
+    INPUTS_KEYS,
     MONTHS,
     PLAN_KEYS,
     POLICY_KEYS,
+    PRICES_KEYS,
     SCHEMA,
     SEASON_KEYS,
     UNCERTAINTY_KEYS,
@@ -45,9 +49,11 @@ from pondsim.scenario.schema import (
 )
 
 __all__ = [
-    "NO_HARVEST", "Crash", "Harvest", "Inoculation", "Light", "Plan", "Policy", "Pond", "Run",
+    "NO_HARVEST", "Crash", "Harvest", "Inoculation", "Inputs", "Light", "Plan", "Policy",
+    "Pond", "Prices", "Run",
     "Scenario", "Season", "Site", "Strain", "Uncertain", "Uncertainty", "Weather",
     "TOP_LEVEL", "UNCERTAIN_PARAMETERS", "load_scenario", "parse_scenario", "relocate_text",
-    "DEFAULT_SEASONS", "DISTRIBUTIONS", "MONTHS", "PLAN_KEYS", "POLICY_KEYS", "SCHEMA",
+    "DEFAULT_SEASONS", "DISTRIBUTIONS", "INPUTS_KEYS", "MONTHS", "PLAN_KEYS", "POLICY_KEYS",
+    "PRICES_KEYS", "SCHEMA",
     "SEASON_KEYS", "UNCERTAINTY_KEYS", "Key", "schema_markdown",
 ]

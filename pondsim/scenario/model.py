@@ -30,6 +30,7 @@ class Weather:
     wind_height_m: float
     max_gap_h: int
     normals: dict[str, tuple[float, ...]] | None
+    site_check: str = "warn"  # 'warn' or 'strict' (pondsim.forcing.sitecheck)
 
 
 @dataclass(frozen=True)
@@ -165,6 +166,55 @@ class Run:
 
 
 @dataclass(frozen=True)
+class Inputs:
+    """What the ponds consume and how the mixing is built ([inputs]; units in the schema)."""
+
+    composition_formula: str = "CO0.48H1.83N0.11P0.01"
+    carbon_fraction: float | None = None
+    n_fraction: float | None = None
+    p_fraction: float | None = None
+    uptake_basis: str = "gross_growth"
+    co2_supply_fraction: float = 1.0
+    co2_utilisation: float = 0.7
+    n_fertiliser: str = "urea"
+    p_fertiliser: str = "dap_18_46_0"
+    n_recycle_fraction: float = 0.0
+    p_recycle_fraction: float = 0.0
+    water_recycle_fraction: float = 0.9
+    blowdown_per_d: float = 0.0
+    velocity_m_s: float = 0.25
+    manning_n: float = 0.015
+    bends_per_circuit: int = 2
+    bend_loss_k: float = 2.0
+    length_to_width: float = 10.0
+    channel_width_m: float | None = None
+    paddlewheel_efficiency: float = 0.2
+    drive_efficiency: float = 0.85
+    mixing_hours_per_day: float = 24.0
+    harvest_kwh_per_m3: float | None = None
+
+
+@dataclass(frozen=True)
+class Prices:
+    """Unit prices in one currency ([prices]); None = not priced."""
+
+    currency: str | None = None
+    co2_per_t: float | None = None
+    n_fertiliser_per_t: float | None = None
+    p_fertiliser_per_t: float | None = None
+    water_per_m3: float | None = None
+    electricity_per_mwh: float | None = None
+    dewatering_per_m3: float | None = None
+    labour_per_harvest: float | None = None
+
+    @property
+    def any(self) -> bool:
+        """True when at least one price is given."""
+        return any(v is not None for k, v in dataclasses.asdict(self).items()
+                   if k != "currency")
+
+
+@dataclass(frozen=True)
 class Scenario:
     """A validated study description. Build it with :func:`load_scenario`."""
 
@@ -183,6 +233,8 @@ class Scenario:
     seasons: tuple[Season, ...] = tuple(Season(n, m) for n, m in DEFAULT_SEASONS)
     plans: tuple[Plan, ...] = ()
     uncertainty: Uncertainty = Uncertainty(20, 16, 64)
+    inputs: Inputs = Inputs()
+    prices: Prices = Prices()
     path: Path | None = None
     extra: dict = field(default_factory=dict, compare=False)
 

@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import datetime as dt
 import math
+import re
 import tomllib
 from pathlib import Path
 
@@ -16,10 +17,12 @@ from pondsim.scenario.model import (
     Crash,
     Harvest,
     Inoculation,
+    Inputs,
     Light,
     Plan,
     Policy,
     Pond,
+    Prices,
     Run,
     Scenario,
     Season,
@@ -32,9 +35,11 @@ from pondsim.scenario.model import (
 from pondsim.scenario.schema import (
     DEFAULT_SEASONS,
     DISTRIBUTIONS,
+    INPUTS_KEYS,
     MONTHS,
     PLAN_KEYS,
     POLICY_KEYS,
+    PRICES_KEYS,
     SCHEMA,
     SEASON_KEYS,
     UNCERTAINTY_KEYS,
@@ -139,7 +144,7 @@ def _parse_table(table, keys: dict[str, Key], path, prefix: str, base_dir: Path)
 
 
 TOP_LEVEL = tuple(s for s in SCHEMA if "." not in s) + ("policy", "season", "plan",
-                                                          "uncertainty")
+                                                          "uncertainty", "inputs", "prices")
 
 
 def parse_scenario(data: dict, path: str | Path | None = None) -> Scenario:
@@ -189,8 +194,52 @@ def parse_scenario(data: dict, path: str | Path | None = None) -> Scenario:
         inoculation=inoc, harvest=Harvest(**sec["harvest"]), policies=policies,
         run=Run(**sec["run"]), crash=Crash(**sec["crash"]), seasons=seasons, plans=plans,
         uncertainty=_parse_uncertainty(data.get("uncertainty", {}), strain, path, base_dir),
+        inputs=_check_inputs(Inputs(**_parse_table(data.get("inputs", {}), INPUTS_KEYS, path,
+                                                   "inputs", base_dir)), path),
+        prices=_check_prices(Prices(**_parse_table(data.get("prices", {}), PRICES_KEYS, path,
+                                                   "prices", base_dir)), path),
         path=Path(path).resolve() if path else None,
     )
+
+
+#: Elements a biomass formula may name, and one element with its (decimal) count.
+BIOMASS_ELEMENTS = ("C", "H", "O", "N", "P", "S")
+_FORMULA_TERM = re.compile(r"([A-Z][a-z]?)(\d+(?:\.\d+)?|\.\d+)?")
+
+
+def biomass_formula_counts(formula: str) -> dict[str, float] | None:
+    """Atoms per element of a biomass formula such as ``CO0.48H1.83N0.11P0.01`` (decimal
+    counts, no parentheses), or None when the text is not such a formula."""
+    text = formula.replace(" ", "")
+    terms = _FORMULA_TERM.findall(text)
+    if not terms or "".join(e + c for e, c in terms) != text:
+        return None
+    counts: dict[str, float] = {}
+    for element, count in terms:
+        counts[element] = counts.get(element, 0.0) + (float(count) if count else 1.0)
+    return counts
+
+
+def _check_inputs(inp: Inputs, path) -> Inputs:
+    counts = biomass_formula_counts(inp.composition_formula)
+    allowed = ("a formula like CO0.48H1.83N0.11P0.01 of the elements "
+               + " ".join(BIOMASS_ELEMENTS) + " with carbon present")
+    if counts is None or not set(counts) <= set(BIOMASS_ELEMENTS) or \
+            not counts.get("C", 0.0) > 0:
+        raise InputError(f"cannot read {inp.composition_formula!r}; allowed: {allowed}",
+                         path=path, field="inputs.composition_formula")
+    if inp.bends_per_circuit % 2:
+        raise InputError(f"{inp.bends_per_circuit} bends; allowed: an even number (a "
+                         "raceway's channels are joined end to end by 180 degree bends)",
+                         path=path, field="inputs.bends_per_circuit")
+    return inp
+
+
+def _check_prices(prices: Prices, path) -> Prices:
+    if prices.any and not (prices.currency or "").strip():
+        raise InputError("missing currency; allowed: the name of the currency of every "
+                         "price, e.g. currency = \"USD\"", path=path, field="prices.currency")
+    return prices
 
 
 #: Strain parameters that may be given a distribution in [uncertainty].
@@ -219,7 +268,7 @@ def _parse_uncertainty(raw, strain: Strain, path, base_dir) -> Uncertainty:
                                  f"{d} ({', '.join(k)})" for d, k in DISTRIBUTIONS.items()),
                              path=path, field=where)
         dist = spec["distribution"]
-        if dist not in DISTRIBUTIONS:
+        if not isinstance(dist, str) or dist not in DISTRIBUTIONS:
             hint = did_you_mean(str(dist), DISTRIBUTIONS)
             raise InputError(f"unknown distribution {dist!r}{hint}; allowed: "
                              + ", ".join(DISTRIBUTIONS), path=path,
@@ -417,11 +466,32 @@ def load_scenario(path: str | Path) -> Scenario:
     if not path.is_file():
         raise InputError("scenario file not found", path=path)
     try:
-        with path.open("rb") as fh:
-            data = tomllib.load(fh)
+        raw = path.read_bytes()
+    except OSError as err:
+        raise InputError(f"cannot read the scenario file: {err.strerror or err}",
+                         path=path) from None
+    try:
+        data = tomllib.loads(decode_text(raw, path))
     except tomllib.TOMLDecodeError as err:
         raise InputError(f"not valid TOML: {err}", path=path) from None
-    return parse_scenario(data, path)
+    try:
+        return parse_scenario(data, path)
+    except (TypeError, AttributeError) as err:  # safety net: a value of an odd type
+        raise InputError(f"a value has a type the scenario does not allow ({err}); see "
+                         "the key reference (pondsim keys)", path=path) from None
+
+
+def decode_text(raw: bytes, path) -> str:
+    """UTF-8 text of a file (a leading byte-order mark is dropped); a byte that is not
+    UTF-8 raises :class:`InputError` naming its line and column."""
+    try:
+        return raw.decode("utf-8-sig")
+    except UnicodeDecodeError as err:
+        head = raw[:err.start]
+        line = head.count(b"\n") + 1
+        column = err.start - (head.rfind(b"\n") + 1) + 1
+        raise InputError(f"not UTF-8 text: byte 0x{raw[err.start]:02x} at line {line}, "
+                         f"column {column}; save the file as UTF-8", path=path) from None
 
 
 

@@ -52,6 +52,13 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "wind_height_m": Key("float", 10.0, "Height of the wind measurement.", "m", 0.5, 100),
         "max_gap_h": Key("int", 3, "Longest gap of missing hours filled by interpolation.",
                          "h", 0, 24),
+        "site_check": Key("str", "warn", "What to do when the site disagrees with the "
+                          "weather: latitude/longitude beyond 1 deg or another UTC offset "
+                          "than the file header, or the data's daily irradiance peak more "
+                          "than 0.4 h from the computed solar noon (assumption-based "
+                          "tolerances, see pondsim.forcing.sitecheck). 'warn' notes it in "
+                          "the summary; 'strict' refuses the run (also: --strict).",
+                          choices=("warn", "strict")),
     },
     "weather.normals": {
         "temp_max_c": Key("floats12", None, "Mean daily maximum air temperature per month.",
@@ -239,6 +246,108 @@ UNCERTAINTY_KEYS: dict[str, Key] = {
                          "of two; cost = samples x (parameters + 2) runs).", "", 8, 8192),
 }
 
+#: [inputs]: what the ponds consume and how their mixing is built (the inputs bill).
+#: Declared apart from SCHEMA, like [uncertainty]: only the bill reads it.
+INPUTS_KEYS: dict[str, Key] = {
+    "composition_formula": Key(
+        "str", "CO0.48H1.83N0.11P0.01", "Elemental formula of the ash-free dry biomass "
+        "per carbon atom (elements C H O N P S, decimal counts); gives the C, N and P "
+        "mass fractions. Default: the microalgal formula quoted by Chisti (2007) "
+        "Biotechnol. Adv. 25:294-306 (doi:10.1016/j.biotechadv.2007.02.001), section 3, "
+        "after Grobbelaar (2004); with IUPAC 2021 atomic weights it is 51.4 % C, 6.6 % N, "
+        "1.3 % P. A measured outdoor composition (C 51.5, N 9.3, P 1.2 % of AFDW) is in "
+        "Biotechnol. Biofuels 14 (2021), doi:10.1186/s13068-021-02098-3, Table 2."),
+    "carbon_fraction": Key("float", None, "Carbon share of the dry biomass; overrides "
+                           "the formula's (e.g. your own CHN analysis).", "kg kg-1", 0.2,
+                           0.7),
+    "n_fraction": Key("float", None, "Nitrogen share of the dry biomass; overrides the "
+                      "formula's.", "kg kg-1", 0.0, 0.15),
+    "p_fraction": Key("float", None, "Phosphorus share of the dry biomass; overrides "
+                      "the formula's.", "kg kg-1", 0.0, 0.05),
+    "uptake_basis": Key("str", "gross_growth", "Biomass that carbon and nutrients are "
+                        "billed on: gross_growth (all biomass formed, including what is "
+                        "later respired, lost in crashes or to the harvester) or "
+                        "net_growth (gross growth less respiration, whose C, N and P "
+                        "return to the medium). Assumption: gross_growth, the larger "
+                        "(conservative) bill.", choices=("gross_growth", "net_growth")),
+    "co2_supply_fraction": Key("float", 1.0, "Share of the carbon taken up that is "
+                               "supplied as bought CO2 (the rest from the air and the "
+                               "medium's alkalinity). Assumption: 1, all of it.", "1",
+                               0.0, 1.0),
+    "co2_utilisation": Key("float", 0.7, "Share of the supplied CO2 that the culture "
+                           "takes up; the rest outgasses. Assumption: 0.7 (a "
+                           "carbonation column on a raceway transferred 83 %: Putt et "
+                           "al. 2011, Bioresour. Technol. 102:3240-3245, abstract).",
+                           "1", 0.0, 1.0, open_low=True),
+    "n_fertiliser": Key("str", "urea", "Nitrogen product (fractions from its formula or "
+                        "trade grade).", choices=(
+                            "urea", "ammonium_nitrate", "dap", "map", "dap_18_46_0",
+                            "map_11_52_0")),
+    "p_fertiliser": Key("str", "dap_18_46_0", "Phosphorus product; the nitrogen it "
+                        "brings is credited against the N demand.", choices=(
+                            "dap", "map", "dap_18_46_0", "map_11_52_0", "tsp")),
+    "n_recycle_fraction": Key("float", 0.0, "Share of the nitrogen taken up that comes "
+                              "back to the ponds (recycled medium, digestate) and need "
+                              "not be bought. Assumption: 0, none.", "1", 0.0, 0.99),
+    "p_recycle_fraction": Key("float", 0.0, "Share of the phosphorus taken up that "
+                              "comes back to the ponds. Assumption: 0, none.", "1",
+                              0.0, 0.99),
+    "water_recycle_fraction": Key("float", 0.9, "Share of the harvested medium returned "
+                                  "to the ponds after dewatering. Assumption: 0.9; set 0 "
+                                  "for no return.", "1", 0.0, 1.0),
+    "blowdown_per_d": Key("float", 0.0, "Culture volume discharged per day to hold "
+                          "salinity, as a share of the pond volume; replaced by makeup "
+                          "water. Assumption: 0, none.", "d-1", 0.0, 0.5),
+    "velocity_m_s": Key("float", 0.25, "Mean channel velocity. Assumption: common "
+                        "practice 0.2-0.3 m s-1 keeps cells in suspension.", "m s-1",
+                        0.05, 1.0),
+    "manning_n": Key("float", 0.015, "Manning roughness of the channel. Assumption: "
+                     "float-finished concrete or a fouled liner (Chow 1959, Open-Channel "
+                     "Hydraulics, Table 5-6, lists n for lined channels).", "s m-1/3",
+                     0.008, 0.05),
+    "bends_per_circuit": Key("int", 2, "180 degree bends in one circuit of a pond (an "
+                             "even number: one per channel).", "", 2, 20),
+    "bend_loss_k": Key("float", 2.0, "Loss of one 180 degree bend in velocity heads "
+                       "v^2/(2 g). Assumption: 2 for an unbaffled hairpin bend.", "1",
+                       0.0, 10.0),
+    "length_to_width": Key("float", 10.0, "Pond length over total width, for the "
+                           "channel width when channel_width_m is not given. "
+                           "Assumption.", "1", 1.0, 100.0),
+    "channel_width_m": Key("float", None, "Channel width (default: from the pond area, "
+                           "length_to_width and bends_per_circuit channels).", "m", 0.2,
+                           100.0),
+    "paddlewheel_efficiency": Key("float", 0.2, "Hydraulic power delivered to the water "
+                                  "over shaft power. Assumption.", "1", 0.01, 1.0),
+    "drive_efficiency": Key("float", 0.85, "Shaft power over electric power (motor and "
+                            "gearbox). Assumption; with the paddlewheel default the "
+                            "wire-to-water efficiency is 0.17.", "1", 0.1, 1.0),
+    "mixing_hours_per_day": Key("float", 24.0, "Hours of paddlewheel operation per "
+                                "day. Assumption: day and night.", "h d-1", 0.0, 24.0),
+    "harvest_kwh_per_m3": Key("float", None, "Electricity to harvest and dewater one "
+                              "m3 of culture (pumps, settlers, centrifuge). Not set: "
+                              "not counted, and the bill says so.", "kWh m-3", 0.0,
+                              100.0),
+}
+
+#: [prices]: unit prices of the inputs bill, in one currency named once.
+PRICES_KEYS: dict[str, Key] = {
+    "currency": Key("str", None, "Currency of every price (named once), e.g. 'USD'; "
+                    "required when any price is given."),
+    "co2_per_t": Key("float", None, "Delivered CO2.", "currency t-1", 0.0, 1e6),
+    "n_fertiliser_per_t": Key("float", None, "Nitrogen product (inputs.n_fertiliser).",
+                              "currency t-1", 0.0, 1e6),
+    "p_fertiliser_per_t": Key("float", None, "Phosphorus product "
+                              "(inputs.p_fertiliser).", "currency t-1", 0.0, 1e6),
+    "water_per_m3": Key("float", None, "Makeup water.", "currency m-3", 0.0, 1e4),
+    "electricity_per_mwh": Key("float", None, "Electricity (mixing, harvest).",
+                               "currency MWh-1", 0.0, 1e5),
+    "dewatering_per_m3": Key("float", None, "Harvest and dewatering services or "
+                             "consumables per m3 of culture harvested (flocculant, "
+                             "contract).", "currency m-3", 0.0, 1e4),
+    "labour_per_harvest": Key("float", None, "Labour per pond harvest (optional).",
+                              "currency", 0.0, 1e6),
+}
+
 #: Distributions a strain parameter may take in [uncertainty], and their keys.
 DISTRIBUTIONS = {
     "normal": ("sd",),            # mean = the strain's value
@@ -279,7 +388,8 @@ def schema_markdown() -> str:
         ("uncertainty (plus one inline table per uncertain strain parameter, e.g. "
          "mu_max_per_d = { distribution = \"normal\", sd = 0.2 }; distributions: "
          + ", ".join(f"{d} ({', '.join(k)})" for d, k in DISTRIBUTIONS.items())
-         + ")", UNCERTAINTY_KEYS)]
+         + ")", UNCERTAINTY_KEYS),
+        ("inputs", INPUTS_KEYS), ("prices", PRICES_KEYS)]
     for section, keys in sections:
         lines += [f"### `[{section}]`", "", "| key | unit | default | allowed | meaning |",
                   "|---|---|---|---|---|"]

@@ -1,0 +1,358 @@
+"""Tests for the scenario's priced inputs bill (pondsim.studies.bill) and the [inputs] /
+[prices] scenario sections."""
+
+from __future__ import annotations
+
+import dataclasses
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+import xarray as xr
+
+from pondsim.errors import InputError
+from pondsim.scenario import (
+    INPUTS_KEYS,
+    PRICES_KEYS,
+    Inputs,
+    Prices,
+    load_scenario,
+    parse_scenario,
+)
+from pondsim.studies import bill as B
+from pondsim.studies.bill_composition import FERTILISERS, biomass_composition
+
+DEMO = Path(__file__).resolve().parents[1] / "scenarios" / "kestrel_flats.toml"
+
+# IUPAC/CIAAW 2021 abridged standard atomic weights, typed here independently.
+H, C, N, O, P = 1.008, 12.011, 14.007, 15.999, 30.974
+
+
+# --- stoichiometry ---------------------------------------------------------------------
+
+def test_chisti_formula_fractions_and_co2_per_kg():
+    # Chisti (2007) Biotechnol. Adv. 25:294-306, sect. 3: biomass CO0.48H1.83N0.11P0.01;
+    # IUPAC 2021 atomic weights. M = 12.011 + 0.48 O + 1.83 H + 0.11 N + 0.01 P
+    # = 23.3857 g mol-1 -> C 0.5136, N 0.0659, P 0.0132, 1.8819 kg CO2 per kg [R].
+    m = C + 0.48 * O + 1.83 * H + 0.11 * N + 0.01 * P
+    comp = biomass_composition("CO0.48H1.83N0.11P0.01")
+    assert comp["molar_mass"] == pytest.approx(m, rel=1e-12)
+    assert comp["carbon_fraction"] == pytest.approx(0.5136, abs=1e-4)
+    assert comp["n_fraction"] == pytest.approx(0.0659, abs=1e-4)
+    assert comp["p_fraction"] == pytest.approx(0.0132, abs=1e-4)
+    assert comp["co2_per_kg"] == pytest.approx(0.5136 * (C + 2 * O) / C, abs=1e-4)
+    assert comp["co2_per_kg"] == pytest.approx(1.8819, abs=1e-4)
+    # the issue's point: P is 1.3 %, not the 1.0 % the old default used
+    assert comp["p_fraction"] == pytest.approx(0.013, abs=5e-4)
+
+
+def test_formula_composition_agrees_with_a_measured_outdoor_composition():
+    # Biotechnol. Biofuels 14 (2021), doi:10.1186/s13068-021-02098-3, Table 2: outdoor
+    # multi-strain average, AFDW: C 51.5 %, N 9.3 %, P 1.2 %. Carbon agrees within 0.2
+    # points; N of that nutrient-replete biomass is higher than the formula's 6.6 %.
+    comp = biomass_composition()
+    assert comp["carbon_fraction"] == pytest.approx(0.515, abs=0.002)
+    assert comp["p_fraction"] == pytest.approx(0.012, abs=0.0015)
+    assert comp["n_fraction"] < 0.093
+
+
+def test_redfield_formula_gives_redfield_mass_ratios():
+    # Redfield (1958) C:N:P = 106:16:1 by atoms: N/C = 16 N / (106 C) by mass [R]
+    comp = biomass_composition("C106H263O110N16P")
+    assert comp["n_fraction"] / comp["carbon_fraction"] == pytest.approx(
+        16 * N / (106 * C), rel=1e-12)
+    assert comp["p_fraction"] / comp["carbon_fraction"] == pytest.approx(
+        P / (106 * C), rel=1e-12)
+
+
+def test_measured_fractions_override_the_formula():
+    comp = biomass_composition(carbon_fraction=0.48, p_fraction=0.011)
+    assert comp["carbon_fraction"] == 0.48 and comp["p_fraction"] == 0.011
+    assert comp["n_fraction"] == pytest.approx(biomass_composition()["n_fraction"])
+    assert "measured" in comp["source"]
+    with pytest.raises(InputError, match="cannot read"):
+        biomass_composition("C(H2O)")
+
+
+# --- mixing ----------------------------------------------------------------------------
+
+def _inputs(**kw):
+    return dataclasses.replace(B.default_inputs(), **kw)
+
+
+def test_pond_mixing_by_hand():
+    # No published raceway worked example with numbers could be opened in the reference
+    # library for this check (a design text's example remains to be added); the Manning
+    # kernel itself is checked against published worked channel problems in
+    # tests/test_inputs.py. Here the assembly is recomputed by hand: Manning friction
+    # S = (n v / R^(2/3))^2 over the flow path L = A / w, plus
+    # 2 bends x k v^2/(2 g); P = rho g Q h / (eta_pw eta_drive) [R, Chow 1959 ch. 5 form]
+    inp = _inputs(channel_width_m=5.0, velocity_m_s=0.3, manning_n=0.015,
+                  bend_loss_k=2.0, paddlewheel_efficiency=0.2, drive_efficiency=0.85)
+    area, depth = 1000.0, 0.3
+    r = 5.0 * depth / (5.0 + 2 * depth)
+    head = (0.015 * 0.3 / r ** (2 / 3)) ** 2 * (area / 5.0) + 2 * 2.0 * 0.09 / (2 * 9.80665)
+    q = 0.3 * 5.0 * depth
+    m = B.pond_mixing(inp, area, depth)
+    assert m["head_m"] == pytest.approx(head, rel=1e-12)
+    assert m["power_w"] == pytest.approx(1000 * 9.80665 * q * head / 0.17, rel=1e-12)
+    assert m["power_w_m3"] == pytest.approx(m["power_w"] / (area * depth), rel=1e-12)
+
+
+@pytest.mark.parametrize("ratio", [0.5, 1.2, 2.0])
+def test_mixing_power_scales_with_velocity_cubed(ratio):
+    # friction and bend losses both go as v^2 and the flow as v: P ~ v^3 exactly
+    base = B.pond_mixing(_inputs(velocity_m_s=0.25), 2000.0, 0.25)["power_w"]
+    fast = B.pond_mixing(_inputs(velocity_m_s=0.25 * ratio), 2000.0, 0.25)["power_w"]
+    assert fast / base == pytest.approx(ratio ** 3, rel=1e-12)
+
+
+def test_mixing_power_per_volume_is_of_the_usual_order():
+    # Plausibility band only (from memory: a few W per m3 of culture is the order quoted
+    # for paddlewheel raceways at 0.2-0.3 m s-1).
+    m = B.pond_mixing(B.default_inputs(), 2000.0, 0.25)
+    assert 0.5 < m["power_w_m3"] < 5.0
+
+
+# --- synthetic results -----------------------------------------------------------------
+
+def _results(n_days=365, members=4, rain=True, year=2025):
+    dates = pd.date_range(f"{year}-01-01", periods=n_days, freq="D")
+    rng = np.random.default_rng(3)
+    dims = ("policy", "member", "day")
+    shape = (1, members, n_days)
+    gross = rng.uniform(5, 30, shape)
+    resp = gross * rng.uniform(0.1, 0.3, shape)
+    harvested = gross * 0.6
+    frac = np.where(rng.uniform(size=shape) < 0.5, 0.2, 0.0)
+    evap = rng.uniform(0, 8, n_days)
+    rain_mm = np.where(rng.uniform(size=n_days) < 0.2, 12.0, 0.0) if rain else \
+        np.full(n_days, np.nan)
+    return xr.Dataset(
+        {"gross_growth": (dims, gross), "respiration": (dims, resp),
+         "harvested": (dims, harvested), "harvest_fraction": (dims, frac),
+         "evaporation": (("day",), evap), "rain": (("day",), rain_mm)},
+        coords={"policy": ["p"], "member": np.arange(members),
+                "day": np.arange(1, n_days + 1), "date": (("day",), dates.to_numpy())})
+
+
+class _Pond:
+    area_m2, count, depth_m = 1000.0, 5, 0.25
+
+
+PRICES = Prices(currency="EUR", co2_per_t=50.0, n_fertiliser_per_t=400.0,
+                p_fertiliser_per_t=700.0, water_per_m3=0.5, electricity_per_mwh=120.0,
+                dewatering_per_m3=0.1, labour_per_harvest=15.0)
+
+
+def _scenario(inputs=None, prices=PRICES):
+    return type("S", (), {"pond": _Pond, "inputs": inputs or B.default_inputs(),
+                          "prices": prices})()
+
+
+def test_quantities_follow_their_stated_bases():
+    ds = _results()
+    inp = _inputs(n_recycle_fraction=0.25, water_recycle_fraction=0.8,
+                  blowdown_per_d=0.01, harvest_kwh_per_m3=0.5)
+    bill = B.scenario_bill(ds, _scenario(inp), "p")
+    y = bill.monthly.loc["year"]
+    farm = 5000.0
+    gross_t = ds["gross_growth"].sum("day").mean().item() * farm * 1e-6
+    comp = biomass_composition()
+    assert y["uptake_biomass_t"] == pytest.approx(gross_t, rel=1e-12)
+    assert y["product_t"] == pytest.approx(
+        ds["harvested"].sum("day").mean().item() * farm * 1e-6, rel=1e-12)
+    assert y["co2_t"] == pytest.approx(gross_t * comp["co2_per_kg"] / 0.7, rel=1e-12)
+    assert y["n_t"] == pytest.approx(gross_t * comp["n_fraction"] * 0.75, rel=1e-12)
+    assert y["p_t"] == pytest.approx(gross_t * comp["p_fraction"], rel=1e-12)
+    # fertilisers deliver exactly the N and P bought
+    dap, urea = FERTILISERS["dap_18_46_0"], FERTILISERS["urea"]
+    assert y["dap_18_46_0_t"] * dap.p_fraction == pytest.approx(y["p_t"], rel=1e-12)
+    assert (y["dap_18_46_0_t"] * dap.n_fraction + y["urea_t"] * urea.n_fraction
+            == pytest.approx(y["n_t"], rel=1e-12))
+    # makeup = floored (evaporation - rain) + unreturned harvest medium + blow-down
+    vol = ds["harvest_fraction"].sum("day").mean().item() * 1000 * 0.25 * 5
+    net = (ds["evaporation"] - ds["rain"]).clip(min=0).sum().item() * 1e-3 * farm
+    assert y["harvest_volume_m3"] == pytest.approx(vol, rel=1e-12)
+    assert y["makeup_water_m3"] == pytest.approx(
+        net + 0.2 * vol + 0.01 * 1000 * 0.25 * 5 * 365, rel=1e-12)
+    # electricity
+    power = bill.mixing["power_w"]
+    assert y["mixing_MWh"] == pytest.approx(power * 5 * 24 * 365 * 1e-6, rel=1e-12)
+    assert y["harvest_MWh"] == pytest.approx(vol * 0.5e-3, rel=1e-12)
+    # each line states its basis
+    assert bill.lines.loc["biomass taken up", "basis"].startswith("gross growth")
+    assert "recovered by harvest" in bill.lines.loc["product", "basis"]
+
+
+def test_net_growth_basis_takes_off_respiration():
+    ds = _results()
+    gross = B.scenario_bill(ds, _scenario(), "p").monthly.loc["year", "co2_t"]
+    net = B.scenario_bill(ds, _scenario(_inputs(uptake_basis="net_growth")),
+                          "p").monthly.loc["year", "co2_t"]
+    ratio = (ds["gross_growth"] - ds["respiration"]).sum().item() / \
+        ds["gross_growth"].sum().item()
+    assert net / gross == pytest.approx(ratio, rel=1e-12)
+
+
+def test_pricing_arithmetic_is_exact():
+    ds = _results()
+    bill = B.scenario_bill(ds, _scenario(_inputs(harvest_kwh_per_m3=0.4)), "p")
+    m, cur = bill.monthly, "EUR"
+    checks = {"co2": ("co2_t", 50.0), "urea": ("urea_t", 400.0),
+              "dap_18_46_0": ("dap_18_46_0_t", 700.0), "water": ("makeup_water_m3", 0.5),
+              "mixing": ("mixing_MWh", 120.0), "harvest_energy": ("harvest_MWh", 120.0),
+              "dewatering": ("harvest_volume_m3", 0.1), "labour": ("harvests", 15.0)}
+    for slug, (col, price) in checks.items():
+        np.testing.assert_allclose(m[f"{slug}_cost_{cur}"], m[col] * price, rtol=1e-12)
+    parts = m[[f"{s}_cost_{cur}" for s in checks]].sum(axis=1)
+    np.testing.assert_allclose(m[f"total_cost_{cur}"], parts, rtol=1e-12)
+    # months add up to the year; cost per tonne = total / product
+    months = m.drop(index="year")
+    np.testing.assert_allclose(months.sum(), m.loc["year"].drop(f"cost_per_t_{cur}")
+                               .reindex(months.columns).fillna(months.sum()), rtol=1e-12)
+    assert m.loc["year", f"cost_per_t_{cur}"] == pytest.approx(
+        m.loc["year", f"total_cost_{cur}"] / m.loc["year", "product_t"], rel=1e-12)
+    # per member: annual cost / annual product
+    assert bill.member_cost_per_t.shape == (4,)
+    assert bill.lines.loc["CO2", "cost_per_yr"] == pytest.approx(
+        m.loc["year", f"co2_cost_{cur}"], rel=1e-12)
+    # doubling every price doubles every cost
+    doubled = dataclasses.replace(PRICES, **{k: 2 * v for k, v in
+                                             dataclasses.asdict(PRICES).items()
+                                             if k != "currency"})
+    twice = B.scenario_bill(ds, _scenario(_inputs(harvest_kwh_per_m3=0.4), doubled), "p")
+    np.testing.assert_allclose(twice.member_cost_per_t, 2 * bill.member_cost_per_t,
+                               rtol=1e-12)
+
+
+def test_unpriced_scenario_still_runs_and_says_not_priced():
+    ds = _results()
+    bill = B.scenario_bill(ds, _scenario(prices=Prices()), "p")
+    assert not bill.priced and bill.cost_per_t is None
+    assert not any("cost" in c for c in bill.monthly.columns)
+    assert any("not priced" in n for n in bill.notes)
+    assert (bill.lines["priced"] != "yes").all()
+    assert "not priced" in B.describe(bill)
+    # a partial price list prices what it can and names what it left out
+    part = B.scenario_bill(ds, _scenario(prices=Prices(currency="EUR", co2_per_t=50.0)),
+                           "p")
+    assert list(c for c in part.monthly.columns if "cost_EUR" in c) == [
+        "co2_cost_EUR", "total_cost_EUR"]
+    assert any("prices.water_per_m3" in n for n in part.notes)
+
+
+def test_unknown_rain_counts_as_none_and_says_so():
+    dry = B.scenario_bill(_results(rain=False), _scenario(), "p")
+    assert any("rain unknown" in n for n in dry.notes)
+    wet = B.scenario_bill(_results(rain=True), _scenario(), "p")
+    assert wet.monthly.loc["year", "makeup_water_m3"] < \
+        dry.monthly.loc["year", "makeup_water_m3"]
+
+
+def test_thermal_makeup_column_is_used_when_present():
+    ds = _results()
+    ds["makeup"] = (("day",), np.full(ds.sizes["day"], 2.0))
+    bill = B.scenario_bill(ds, _scenario(_inputs(water_recycle_fraction=1.0)), "p")
+    assert bill.monthly.loc["year", "makeup_water_m3"] == pytest.approx(
+        2.0e-3 * 5000.0 * 365, rel=1e-12)
+
+
+def test_leap_year_and_bad_policy():
+    bill = B.scenario_bill(_results(n_days=366, year=2024), _scenario(), "p")
+    assert bill.monthly.loc["Feb", "mixing_MWh"] == pytest.approx(
+        bill.mixing["power_w"] * 5 * 24 * 29 * 1e-6, rel=1e-12)
+    with pytest.raises(InputError, match="unknown policy"):
+        B.scenario_bill(_results(), _scenario(), "q")
+    with pytest.raises(InputError, match="gross_growth"):
+        B.scenario_bill(_results().drop_vars("gross_growth"), _scenario(), "p")
+
+
+# --- ensemble statistics ---------------------------------------------------------------
+
+def test_exceedance_convention_for_a_cost():
+    # P90 = exceeded with probability 0.9 = 10th percentile (the LOW cost); P10 =
+    # exceeded with probability 0.1 = 90th percentile (the conservative HIGH cost).
+    x = np.arange(1.0, 11.0)
+    assert B.exceedance_value(x, 0.9) == pytest.approx(np.quantile(x, 0.1))
+    assert B.exceedance_value(x, 0.1) == pytest.approx(np.quantile(x, 0.9))
+    assert B.exceedance_value(x, 0.5) == pytest.approx(5.5)
+    table = B.cost_per_tonne_table(x, "EUR").iloc[0]
+    assert table["P90_EUR_per_t"] < table["P50_EUR_per_t"] < table["P10_EUR_per_t"]
+    # members without product cost "infinitely much" and sit in the high tail
+    assert B.exceedance_value(np.append(x, np.inf), 0.5) == pytest.approx(6.0)
+    assert np.isinf(B.exceedance_value(np.append(x, [np.inf] * 3), 0.1))
+
+
+def test_quantile_interval_covers_the_true_quantile():
+    # distribution-free order-statistic interval (Hahn & Meeker 1991, from memory for the
+    # chapter): coverage of the 0.1 quantile of a standard normal from n = 80 is >= 0.95
+    # by construction (conservative); checked by simulation with 400 samples.
+    rng = np.random.default_rng(0)
+    true = -1.2815515655446004  # scipy.stats.norm.ppf(0.1)
+    hits = 0
+    for _ in range(400):
+        lo, hi = B.quantile_interval(rng.standard_normal(80), 0.1)
+        hits += lo <= true <= hi
+    assert hits / 400 >= 0.93
+    lo, hi = B.quantile_interval(np.arange(5.0), 0.1)
+    assert np.isnan(lo)  # too few members for a 95 % lower bound
+
+
+# --- scenario sections -----------------------------------------------------------------
+
+def test_dataclass_defaults_are_the_schema_defaults():
+    for cls, keys in ((Inputs, INPUTS_KEYS), (Prices, PRICES_KEYS)):
+        defaults = {f.name: f.default for f in dataclasses.fields(cls)}
+        assert defaults == {k: key.default for k, key in keys.items()}
+
+
+def test_fertiliser_choices_match_the_products():
+    assert set(INPUTS_KEYS["n_fertiliser"].choices) <= set(FERTILISERS)
+    assert set(INPUTS_KEYS["p_fertiliser"].choices) <= set(FERTILISERS)
+    for name in INPUTS_KEYS["p_fertiliser"].choices:
+        assert FERTILISERS[name].p_fraction > 0
+
+
+def test_every_inputs_default_cites_a_source_or_says_assumption():
+    # the issue: no default may reach an output without its source or an "assumption"
+    for name, key in INPUTS_KEYS.items():
+        if key.default is None or name in ("n_fertiliser", "p_fertiliser",
+                                           "bends_per_circuit"):
+            continue
+        doc = key.doc.lower()
+        assert "assumption" in doc or "doi" in doc, name
+        assert "from memory" not in doc, name
+
+
+def _minimal(**sections):
+    data = {"strain": {"mu_max_per_d": 1.0, "light_param_umol_m2_s": 300.0, "t_min_c": 5.0,
+                       "t_opt_c": 25.0, "t_max_c": 35.0},
+            "weather": {"path": str(DEMO.parents[1] / "weather" / "kestrel_flats.epw")}}
+    data.update(sections)
+    return data
+
+
+@pytest.mark.parametrize("sections, field", [
+    ({"inputs": {"composition_formula": "CO0.48H1.83X0.1"}}, "inputs.composition_formula"),
+    ({"inputs": {"bends_per_circuit": 3}}, "inputs.bends_per_circuit"),
+    ({"inputs": {"carbon_fraction": 0.9}}, "inputs.carbon_fraction"),
+    ({"inputs": {"co2_utilisation": 0.0}}, "inputs.co2_utilisation"),
+    ({"inputs": {"p_fertiliser": "urea"}}, "inputs.p_fertiliser"),
+    ({"prices": {"co2_per_t": 50.0}}, "prices.currency"),
+    ({"prices": {"currency": "EUR", "water_per_m3": -1.0}}, "prices.water_per_m3"),
+    ({"prices": {"currency": "EUR", "fertiliser_per_t": 1.0}}, "prices.fertiliser_per_t"),
+])
+def test_bad_inputs_and_prices_name_the_field(sections, field):
+    with pytest.raises(InputError) as err:
+        parse_scenario(_minimal(**sections), "x.toml")
+    assert err.value.field == field
+
+
+def test_demo_scenario_sets_inputs_and_demo_prices():
+    s = load_scenario(DEMO)
+    assert s.prices.currency == "USD" and s.prices.any
+    assert s.inputs.composition_formula == "CO0.48H1.83N0.11P0.01"
+    text = DEMO.read_text()
+    assert "DEMO PRICES" in text and "NOT" in text  # invented, and says so
