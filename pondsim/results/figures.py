@@ -90,6 +90,8 @@ def weather_figure(table: pd.DataFrame, water: pd.DataFrame, forcing: pd.DataFra
     ax2 = ax.twinx()
     ax2.plot(x, table["makeup m3"].iloc[:-1], "k-o", ms=4, label="makeup water")
     ax2.set_ylabel("makeup water for the farm [m$^3$ month$^{-1}$]")
+    ax.set_ylim(bottom=0)
+    ax2.set_ylim(bottom=0)
     h1, l1 = ax.get_legend_handles_labels()
     h2, l2 = ax2.get_legend_handles_labels()
     ax.legend(h1 + h2, l1 + l2, loc="upper left", fontsize=8)
