@@ -14,6 +14,12 @@ from pathlib import Path
 from pondsim.errors import InputError
 
 EXIT_INPUT = 2
+#: One meaning of the ensemble options in every command.
+MEMBERS_HELP = "crash replicates per driver set (weather year x parameter draw)"
+YEARS_HELP = "weather years"
+#: Crash replicates of an outlook with crashes on, at least (farm totals draw each pond's
+#: crash history from a cell's replicates; common practice for a bootstrap: >= 4-8).
+OUTLOOK_REPLICATES = 4
 
 
 def add_strict_option(parser) -> None:
@@ -79,7 +85,7 @@ def _parser() -> argparse.ArgumentParser:
     r.add_argument("scenario", help="scenario .toml")
     r.add_argument("--out", default=None, metavar="DIR",
                    help="output folder (default: out/<scenario name>)")
-    r.add_argument("--members", type=int, help="stochastic members per policy")
+    r.add_argument("--members", type=int, help=MEMBERS_HELP + " (default: run.members)")
     r.add_argument("--seed", type=int, help="seed of the random streams")
     r.add_argument("--no-plots", action="store_true", help="skip the figures")
     for parser in (w, r):
@@ -91,7 +97,7 @@ def _parser() -> argparse.ArgumentParser:
                        "the best policy per season under the risk limit, and figures.")
     c.add_argument("scenario", help="scenario .toml")
     c.add_argument("--members", type=int, default=None,
-                   help="stochastic members per policy (default: run.members, at least 200)")
+                   help=MEMBERS_HELP + " (default: run.members, at least 200)")
     c.add_argument("--seed", type=int, help="seed of the random streams")
     c.add_argument("--out", default=None, metavar="DIR",
                    help="output folder (default: out/<scenario name>-compare)")
@@ -100,17 +106,35 @@ def _parser() -> argparse.ArgumentParser:
     o = sub.add_parser("outlook", help="P50/P90 annual yield over weather years, "
                        "sensitivity and the inputs bill",
                        description="Simulate many weather years (synthetic from the typical "
-                       "year, or the file's real years) and parameter draws; report "
-                       "P50/P75/P90 annual yield, monthly bands, Sobol sensitivity of yield "
-                       "to the uncertain parameters and the farm's inputs bill.")
+                       "year, or the file's real years) with their own parameter draws and "
+                       "crash replicates; report P50/P75/P90 annual yield (exceedance values:"
+                       " P90 is exceeded with probability 0.9) with 95 % Monte Carlo "
+                       "intervals, per pond area and for the farm (the sum of its ponds), "
+                       "monthly 10th-90th percentile bands, Sobol sensitivity of yield to "
+                       "the uncertain parameters and the farm's inputs bill. The ensemble "
+                       "grows in rounds until the lead policy's P90 interval meets "
+                       "uncertainty.p90_target_pct or uncertainty.max_members is reached.")
     o.add_argument("scenario", help="scenario .toml")
     o.add_argument("--years", type=int, default=None,
-                   help="weather years (default: uncertainty.weather_years)")
+                   help=YEARS_HELP + " in the first round (default: "
+                   "uncertainty.weather_years; a file of real years uses all of them)")
     o.add_argument("--draws", type=int, default=None,
-                   help="parameter draws (default: uncertainty.draws; 1 without "
-                        "uncertain parameters)")
-    o.add_argument("--members", type=int, default=1,
-                   help="crash replicates per weather year and draw (default 1)")
+                   help="parameter draws per weather year (default: uncertainty.draws; 1 "
+                        "without uncertain parameters)")
+    o.add_argument("--members", type=int, default=None,
+                   help=MEMBERS_HELP + " (default: run.members, at least "
+                   f"{OUTLOOK_REPLICATES} with crashes on, so that the farm's ponds crash "
+                   "apart)")
+    o.add_argument("--target", type=float, default=None, metavar="PCT",
+                   help="convergence target: 95 %% interval half-width of the lead P90 as "
+                        "%% of its P50 (default: uncertainty.p90_target_pct)")
+    o.add_argument("--max-members", type=int, default=None,
+                   help="cap on members per policy (default: uncertainty.max_members)")
+    o.add_argument("--fixed", action="store_true",
+                   help="one round of the given size, no growth towards the target")
+    o.add_argument("--sobol-samples", type=int, default=None,
+                   help="base samples of the Sobol indices (default: "
+                        "uncertainty.sobol_samples)")
     o.add_argument("--seed", type=int, help="seed of weather years, draws and crashes")
     o.add_argument("--no-sensitivity", action="store_true", help="skip the Sobol indices")
     o.add_argument("--out", default=None, metavar="DIR",
@@ -124,9 +148,9 @@ def _parser() -> argparse.ArgumentParser:
                        "limit; write the tuned plan into a copy of the scenario.")
     t.add_argument("scenario", help="scenario .toml")
     t.add_argument("--years", type=int, default=None,
-                   help="weather years (default: uncertainty.weather_years, at most 8)")
+                   help=YEARS_HELP + " (default: uncertainty.weather_years, at most 8)")
     t.add_argument("--members", type=int, default=8,
-                   help="crash replicates per weather year (default 8)")
+                   help=MEMBERS_HELP + " (default 8)")
     t.add_argument("--seed", type=int, help="seed of weather years and crashes")
     t.add_argument("--no-refine", action="store_true", help="grid search only")
     t.add_argument("--out", default=None, metavar="DIR",
@@ -193,7 +217,8 @@ def main(argv: list[str] | None = None) -> int:
 #: Command-line values checked before anything runs: flag -> (low, high), whole numbers.
 WHOLE_NUMBER_FLAGS = {"members": (1, 1_000_000), "years": (1, 100_000),
                       "draws": (1, 100_000), "workers": (1, 4096), "seed": (0, 2**63 - 1),
-                      "year": (1, 9999)}
+                      "year": (1, 9999), "max_members": (1, 1_000_000),
+                      "sobol_samples": (1, 8192)}
 
 
 def check_arguments(args) -> None:
@@ -205,13 +230,17 @@ def check_arguments(args) -> None:
         value = getattr(args, name, None)
         if value is not None and not low <= value <= high:
             raise InputError(f"{value} is out of range; allowed: a whole number in "
-                             f"[{low}, {high}]", field=f"--{name}")
+                             f"[{low}, {high}]", field=f"--{name.replace('_', '-')}")
     for name, low, high in (("latitude", -90, 90), ("longitude", -180, 180),
                             ("elevation", -500, 6000), ("utc_offset", -14, 14)):
         value = getattr(args, name, None)
         if value is not None and not (math.isfinite(value) and low <= value <= high):
             raise InputError(f"{value} is out of range; allowed: a number in [{low}, "
                              f"{high}]", field=f"--{name.replace('_', '-')}")
+    target = getattr(args, "target", None)
+    if target is not None and not (math.isfinite(target) and 0.1 <= target <= 100):
+        raise InputError(f"{target:g} is out of range; allowed: a number in [0.1, 100] %",
+                         field="--target")
     out = getattr(args, "out", None)
     if out is not None and not str(out).strip():
         raise InputError("empty output folder name", field="--out")
@@ -462,10 +491,10 @@ def cmd_compare(args) -> int:
           f"{elapsed:.1f} s")
     print_site_check(ds.attrs)
     print()
-    view = table[["yield_t_ha", "yield_t_ha_p10", "yield_t_ha_p90", "productivity_g_m2_d",
+    view = table[["yield_t_ha", "yield_pct10_t_ha", "yield_pct90_t_ha", "productivity_g_m2_d",
                   "harvests", "harvest_volume_m3", "mean_density_g_m3", "expected_crashes",
                   "p_crash", "days_at_risk", "biomass_lost_g_m2"]].copy()
-    view.columns = ["t/ha", "P10", "P90", "g/m2/d", "harvests", "m3/pond", "mean g/m3",
+    view.columns = ["t/ha", "pct10", "pct90", "g/m2/d", "harvests", "m3/pond", "mean g/m3",
                     "E[crashes]", "P(crash)", "risk days", "lost g/m2"]
     print(view.to_string(float_format=lambda v: f"{v:,.2f}"))
     print(f"\nbest policy per season (risk limit: P(>= 1 crash) <= {limit:.0%} per season):")
@@ -487,25 +516,40 @@ def cmd_outlook(args) -> int:
     from pondsim.results.files import save, write_csv
     from pondsim.studies.bill import describe as describe_bill
     from pondsim.studies.bill import scenario_bill
-    from pondsim.studies.outlook import annual_table, monthly_bands, run_outlook, sensitivity
+    from pondsim.studies.outlook import (
+        annual_table,
+        headline,
+        monthly_bands,
+        run_outlook,
+        sensitivity,
+    )
 
     scenario = load_checked_scenario(args)
     unc = scenario.uncertainty
     n_years = args.years or unc.weather_years
     n_draws = (args.draws or unc.draws) if unc.parameters else 1
+    crashes = scenario.crash is not None and scenario.crash.enabled
+    members = args.members or (max(scenario.run.members, OUTLOOK_REPLICATES) if crashes
+                               else scenario.run.members)
     seed = scenario.run.seed if args.seed is None else args.seed
     with _output_set(args, "outlook", "-outlook", seed) as files:
         t0 = time.perf_counter()
-        ds, meta = run_outlook(scenario, n_years=n_years, n_draws=n_draws,
-                               members=args.members, seed=seed)
-        annual = annual_table(ds, scenario.pond.farm_area_m2)
+        print(f"{scenario.study_name}: outlook, {n_draws} parameter draw(s) per weather "
+              f"year x {members} crash replicate(s)", flush=True)
+        ds, meta = run_outlook(scenario, n_years=n_years, n_draws=n_draws, members=members,
+                               seed=seed, converge=not args.fixed, target_pct=args.target,
+                               max_members=args.max_members,
+                               report=lambda s: print(s, flush=True))
+        annual = annual_table(ds, count=scenario.pond.count, seed=seed,
+                              crash_correlation=unc.farm_crash_correlation)
         bands = monthly_bands(ds)
-        best = annual["P50_t_ha_yr"].idxmax()
+        best = str(annual["P50_t_ha_yr"].idxmax())
         sens = None
+        n_sobol = args.sobol_samples or unc.sobol_samples
         if unc.parameters and not args.no_sensitivity:
-            print(f"Sobol sensitivity of '{best}': {unc.sobol_samples} x "
-                  f"{len(unc.parameters) + 2} runs ...", flush=True)
-            sens = sensitivity(scenario, best, n=unc.sobol_samples, seed=seed)
+            print(f"Sobol sensitivity of '{best}': {n_sobol} x {len(unc.parameters) + 2} "
+                  "runs ...", flush=True)
+            sens = sensitivity(scenario, best, n=n_sobol, seed=seed)
         bill = scenario_bill(ds, scenario, best)
         elapsed = time.perf_counter() - t0
         files.notes["site_check"] = ds.attrs.get("site_check", "not run")
@@ -516,33 +560,80 @@ def cmd_outlook(args) -> int:
                    write_csv(bill.lines, out / "inputs_bill_lines.csv")]
         if bill.cost_per_t is not None:
             written.append(write_csv(bill.cost_per_t, out / "inputs_cost_per_t.csv"))
+        if meta.get("rounds"):
+            import pandas as pd
+
+            written.append(write_csv(pd.DataFrame(meta["rounds"]).set_index("round"),
+                                     out / "convergence.csv"))
         if sens is not None:
             written.append(write_csv(sens, out / "sensitivity.csv"))
         from pondsim.results.figures import outlook_figures
 
-        written += outlook_figures(ds, bands, sens, out)
-    print(f"{scenario.study_name}: {n_years} weather years x {n_draws} parameter draws x "
-          f"{args.members} crash replicate(s), {elapsed:.1f} s")
+        written += outlook_figures(ds, bands, sens, out, annual_table=annual)
+    r = annual.loc[best]
+    print(f"\n{r['weather_years']:.0f} weather years x {n_draws} draws each "
+          f"({r['parameter_draws']:.0f} distinct) x {members} crash replicate(s) = "
+          f"{r['members']:.0f} members per policy, {elapsed:.1f} s")
     print_site_check(ds.attrs)
     for note in meta.get("notes", [])[-1:]:
         print(f"  note: {note}")
     print()
-    view = annual[["mean_t_ha_yr", "P50_t_ha_yr", "P75_t_ha_yr", "P90_t_ha_yr",
-                   "P50_farm_t_yr", "P90_farm_t_yr", "mean_g_m2_d", "expected_crashes_yr"]]
-    view.columns = ["mean t/ha/yr", "P50", "P75", "P90", "P50 farm t", "P90 farm t",
-                    "g/m2/d", "crashes/yr"]
+
+    def ci(col, unit):
+        return annual.apply(lambda x: _ci_text(x, col, unit), axis=1)
+
+    view = annual[["mean_t_ha_yr"]].copy()
+    for name in ("P50", "P90"):
+        view[f"{name} t/ha/yr (95 % CI)"] = ci(name, "t_ha_yr")
+    for name in ("P50", "P90"):
+        view[f"{name} farm t (95 % CI)"] = ci(name, "farm_t_yr")
+    view["crashes/yr"] = annual["expected_crashes_yr"]
+    view = view.rename(columns={"mean_t_ha_yr": "mean t/ha/yr"})
     print(view.to_string(float_format=lambda v: f"{v:,.2f}"))
-    print(f"\n(P90 = annual yield exceeded in 90 % of years.) Highest P50: {best}")
+    print(f"\nP50/P90 are exceedance values: P90 = annual yield exceeded with probability "
+          f"0.9. Farm = sum over {scenario.pond.count} pond(s) sharing each weather year "
+          f"and draw, each with its own crashes (correlation "
+          f"{unc.farm_crash_correlation:g}).")
+    status = _convergence_text(ds)
+    print(f"lead policy '{best}'" + (f": {status}" if status else ""))
+    print("  per hectare: " + "; ".join(headline(annual, best)))
+    print(f"  farm of {scenario.pond.count} pond(s): "
+          + "; ".join(headline(annual, best, farm=True)))
     if sens is not None:
-        print("\nSobol indices of annual yield (first order, total):")
-        for name, r in sens.iterrows():
-            print(f"  {name:>24}: {r['first_order']:.2f}  {r['total']:.2f}")
+        print("\nSobol indices of annual yield (first order, total; 95 % bootstrap interval):")
+        for name, s in sens.iterrows():
+            print(f"  {name:>24}: {s['first_order']:.2f} ({s['first_order_low']:.2f}\u2013"
+                  f"{s['first_order_high']:.2f})  {s['total']:.2f} ({s['total_low']:.2f}"
+                  f"\u2013{s['total_high']:.2f})")
+        for warning in sens.attrs.get("warnings", []):
+            print(f"  WARNING: {warning}")
     print("\n" + describe_bill(bill))
     _print_written(files, written)
     print("\nSynthetic weather years resample the typical year: they spread the weather but "
           "cannot hold years worse than the record.")
     print("\n" + CAUTION)
     return 0
+
+
+def _ci_text(row, name, unit) -> str:
+    """``"17.3 (15.9–18.4)"`` from an annual-table row; an open side shows ``?``."""
+    def f(v):
+        return f"{v:,.1f}" if v == v else "?"
+
+    return (f"{f(row[f'{name}_{unit}'])} ({f(row[f'{name}_low_{unit}'])}\u2013"
+            f"{f(row[f'{name}_high_{unit}'])})")
+
+
+def _convergence_text(ds) -> str:
+    if "converged" not in ds.attrs:
+        return ""
+    n = ds.sizes["member"]
+    half, target = ds.attrs["p90_half_width_pct"], ds.attrs["p90_target_pct"]
+    if ds.attrs["converged"]:
+        return (f"converged at {n} members per policy (P90 95 % CI half-width "
+                f"{half:.1f} % of P50, target {target:g} %)")
+    return (f"not converged at {n} members per policy (P90 95 % CI half-width {half:.1f} % "
+            f"of P50, target {target:g} %; raise --max-members or uncertainty.max_members)")
 
 
 def cmd_tune(args) -> int:

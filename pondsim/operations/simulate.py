@@ -112,9 +112,11 @@ def build_drivers(hourly_sets, scenario: Scenario, draws: dict | None = None) ->
         Hourly light and water tables (:func:`hourly_light_and_water`), one per weather
         year, all of the same length.
     scenario : Scenario
-    draws : dict of str -> ndarray (n_draws,), optional
+    draws : dict of str -> ndarray (n_draws,) or (n_years, n_draws), optional
         Strain parameters (names in :data:`DRAWABLE`) that vary between draws; the others
-        keep the scenario's value.
+        keep the scenario's value. One-dimensional draws are crossed with every weather
+        year; two-dimensional ones are nested (row ``y`` holds weather year ``y``'s own
+        draws).
 
     Returns
     -------
@@ -129,15 +131,19 @@ def build_drivers(hourly_sets, scenario: Scenario, draws: dict | None = None) ->
     if unknown:
         raise InputError(f"parameters {unknown} cannot vary; allowed: {', '.join(DRAWABLE)}",
                          field="uncertainty")
-    n_draws = len(next(iter(draws.values()))) if draws else 1
+    n_draws = next(iter(draws.values())).shape[-1] if draws else 1
     n_years = len(hourly_sets)
+    if any(v.ndim == 2 and v.shape != (n_years, n_draws) for v in draws.values()):
+        raise InputError(f"nested draws must have shape ({n_years}, {n_draws})",
+                         field="uncertainty")
     year_of_set = np.repeat(np.arange(n_years), n_draws)
     tw = np.stack([h["water_temperature"].to_numpy(float) for h in hourly_sets])[year_of_set]
     par = np.stack([h["par"].to_numpy(float) for h in hourly_sets])[year_of_set]
 
     def param(name):
         if name in draws:
-            return np.tile(draws[name], n_years)
+            v = draws[name]
+            return v.ravel() if v.ndim == 2 else np.tile(v, n_years)
         return np.full(n_years * n_draws, float(getattr(s, name)))
 
     p = {name: param(name) for name in DRAWABLE}

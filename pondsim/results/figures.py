@@ -227,7 +227,8 @@ def compare_figures(ds, table, crash, out_dir) -> list[Path]:
         ax.plot(dates, ds["carrying_capacity"], color="0.6", lw=0.8, label="K (daily)")
         ax.plot(dates, k_smooth, color="k", lw=1.2, label=f"K, {crash.window_days}-day mean")
         ax.fill_between(dates, dens.quantile(0.1, "member"), dens.quantile(0.9, "member"),
-                        color=COLORS[i % len(COLORS)], alpha=0.25, label="P10–P90 members")
+                        color=COLORS[i % len(COLORS)], alpha=0.25,
+                        label="10th–90th percentile of members")
         ax.plot(dates, dens.median("member"), color=COLORS[i % len(COLORS)], lw=1.2,
                 label="median member")
         first = dens.isel(member=0)
@@ -255,13 +256,14 @@ def compare_figures(ds, table, crash, out_dir) -> list[Path]:
         sub = table.xs(p, level="policy").reindex(seasons)
         y = sub["productivity_g_m2_d"].to_numpy()
         per_day = 1.0 / (G_M2_TO_T_HA * sub["days"].to_numpy())  # t ha-1 -> g m-2 d-1
-        lo = sub["yield_t_ha_p10"].to_numpy() * per_day
-        hi = sub["yield_t_ha_p90"].to_numpy() * per_day
+        lo = sub["yield_pct10_t_ha"].to_numpy() * per_day
+        hi = sub["yield_pct90_t_ha"].to_numpy() * per_day
         ax.bar(x - 0.4 + width * (i + 0.5), y, width, color=COLORS[i % len(COLORS)],
                hatch=hatches[i % len(hatches)], edgecolor="white", label=str(p),
                yerr=np.vstack([y - lo, hi - y]).clip(0), capsize=3)
     ax.set_xticks(x, seasons)
-    ax.set_ylabel("harvested productivity [g m$^{-2}$ d$^{-1}$] (bars: P10–P90 members)")
+    ax.set_ylabel("harvested productivity [g m$^{-2}$ d$^{-1}$]\n(bars: 10th–90th "
+                  "percentile over members)")
     ax.set_title("Seasonal yield by policy")
     ax.legend(fontsize=8)
     ax.grid(axis="y", alpha=0.3)
@@ -297,8 +299,9 @@ def mdates_num(ts):
     return mdates.date2num(pd.Timestamp(ts).to_pydatetime())
 
 
-def outlook_figures(ds, bands, sens, out_dir) -> list[Path]:
-    """Exceedance curves of annual yield, monthly P10–P90 bands, Sobol indices."""
+def outlook_figures(ds, bands, sens, out_dir, annual_table=None) -> list[Path]:
+    """Exceedance curves of annual yield (with the 95 % intervals of P50 and P90 where
+    ``annual_table`` is given), monthly 10th–90th percentile bands, Sobol indices."""
     out_dir = Path(out_dir)
     written = []
     pols = list(ds["policy"].values)
@@ -309,13 +312,25 @@ def outlook_figures(ds, bands, sens, out_dir) -> list[Path]:
         a = np.sort(annual.sel(policy=p).values)[::-1]
         exceed = 100 * (np.arange(1, a.size + 1) - 0.5) / a.size
         ax.plot(exceed, a, label=str(p), **_style(i))
+        if annual_table is not None and str(p) in annual_table.index:
+            r = annual_table.loc[str(p)]
+            for q in (50, 90):
+                v = r[f"P{q}_t_ha_yr"]
+                err = np.array([[v - r[f"P{q}_low_t_ha_yr"]], [r[f"P{q}_high_t_ha_yr"] - v]])
+                ax.errorbar([q], [v], yerr=np.nan_to_num(err.clip(0)), fmt="o", ms=4,
+                            capsize=4, color=_style(i)["color"], zorder=4)
     for q in (50, 75, 90):
         ax.axvline(q, color="0.5", lw=0.8, linestyle=":")
         ax.text(q, ax.get_ylim()[1], f" P{q}", va="top", fontsize=8, color="0.3")
-    ax.set_xlabel("probability of exceedance [%] (share of years with at least this yield)")
+    ax.set_xlabel("probability of exceedance [%] (P90: exceeded with probability 0.9)")
+    if annual_table is not None:
+        ax.errorbar([], [], yerr=[], fmt="o", ms=4, capsize=4, color="0.3",
+                    label="P50, P90 with 95 % CI")
     ax.set_ylabel("annual biomass yield [t ha$^{-1}$ yr$^{-1}$ AFDW]")
+    per_year = " each" if ds.attrs.get("draws_nested") else ""
     ax.set_title(f"{ds.attrs['site']}: annual yield over {ds.attrs.get('weather_years', 1)} "
-                 f"weather years × {ds.attrs.get('parameter_draws', 1)} parameter draws")
+                 f"weather years × {ds.attrs.get('parameter_draws', 1)} parameter "
+                 f"draws{per_year} × {ds.attrs.get('replicates', 1)} crash replicates")
     ax.grid(alpha=0.3)
     ax.legend(fontsize=8)
     written.append(_save(fig, out_dir / "exceedance.png"))
@@ -325,10 +340,10 @@ def outlook_figures(ds, bands, sens, out_dir) -> list[Path]:
     for i, p in enumerate(pols):
         b = bands.xs(str(p), level="policy").reindex(months)
         st = _style(i)
-        ax.fill_between(months, b["p10_g_m2_d"], b["p90_g_m2_d"], color=st["color"],
+        ax.fill_between(months, b["pct10_g_m2_d"], b["pct90_g_m2_d"], color=st["color"],
                         alpha=0.2)
-        ax.plot(months, b["p50_g_m2_d"], marker="o", ms=3, label=f"{p}: P50 (band P10–P90)",
-                **st)
+        ax.plot(months, b["pct50_g_m2_d"], marker="o", ms=3,
+                label=f"{p}: median (band: 10th–90th percentile)", **st)
     ax.set_xticks(months, [pd.Timestamp(2000, m, 1).strftime("%b") for m in months])
     ax.set_ylabel("harvested productivity [g m$^{-2}$ d$^{-1}$]")
     ax.set_title("Monthly productivity across weather years and parameter draws")

@@ -156,6 +156,10 @@ class Uncertainty:
     draws: int
     sobol_samples: int
     parameters: tuple[Uncertain, ...] = ()
+    p90_target_pct: float = 5.0
+    max_members: int = 2000
+    max_cut_share: float = 0.05
+    farm_crash_correlation: float = 0.0
 
 
 @dataclass(frozen=True)

@@ -200,8 +200,9 @@ SCHEMA: dict[str, dict[str, Key]] = {
                                       open_low=True),
     },
     "run": {
-        "members": Key("int", 1, "Stochastic members (crash draws) per policy.", "", 1,
-                       1000000),
+        "members": Key("int", 1, "Crash replicates per driver set (weather year x "
+                       "parameter draw) and policy; the same meaning as --members of every "
+                       "command.", "", 1, 1000000),
         "seed": Key("int", 12345, "Seed of the random streams (same seed, same result).",
                     "", 0, 2**63 - 1),
         "progress": Key("bool", True, "Show progress bars on long runs."),
@@ -238,12 +239,31 @@ PLAN_KEYS: dict[str, Key] = {
 }
 
 UNCERTAINTY_KEYS: dict[str, Key] = {
-    "weather_years": Key("int", 20, "Synthetic weather years for outlook and tuning studies.",
-                         "", 1, 10000),
-    "draws": Key("int", 16, "Parameter draws (Latin hypercube) for outlook studies.", "",
-                 1, 10000),
+    "weather_years": Key("int", 20, "Synthetic weather years for tuning studies and the "
+                         "first round of an outlook (a file of real years uses all of "
+                         "them).", "", 1, 10000),
+    "draws": Key("int", 16, "Parameter draws (Latin hypercube) per weather year for outlook "
+                 "studies; every weather year has its own draws.", "", 1, 10000),
     "sobol_samples": Key("int", 64, "Base samples for Sobol sensitivity indices (a power "
                          "of two; cost = samples x (parameters + 2) runs).", "", 8, 8192),
+    "p90_target_pct": Key("float", 5.0, "Outlook convergence target: the ensemble grows "
+                          "until the 95 % interval half-width of the lead policy's P90 is "
+                          "at most this share of its P50 (assumption: 5 % keeps a default "
+                          "outlook within minutes; set 2 for a lender's figure).", "%",
+                          0.1, 100.0, open_low=True),
+    "max_members": Key("int", 2000, "Outlook cap: the ensemble stops growing before it "
+                       "would exceed this many members per policy (weather years x draws "
+                       "x crash replicates) and reports 'not converged'.", "", 1, 1000000),
+    "max_cut_share": Key("float", 0.05, "Largest share of an uncertain parameter's "
+                         "distribution that its allowed strain range may cut away "
+                         "(truncation); more is refused. Also the largest share of draws "
+                         "allowed to break t_min < t_opt < t_max before they are refused "
+                         "rather than redrawn (assumption).", "1", 0.0, 0.5),
+    "farm_crash_correlation": Key("float", 0.0, "Correlation of crash losses between the "
+                                  "farm's ponds in the same weather year and draw (0: each "
+                                  "pond crashes independently; 1: all ponds together). "
+                                  "Assumption: no published value; ponds sharing inoculum "
+                                  "or staff are likely above 0.", "1", 0.0, 1.0),
 }
 
 #: [inputs]: what the ponds consume and how their mixing is built (the inputs bill).

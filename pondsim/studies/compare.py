@@ -28,7 +28,8 @@ def at_risk(ds: xr.Dataset) -> xr.DataArray:
 def season_table(ds: xr.Dataset) -> pd.DataFrame:
     """One row per (policy, season): yield, harvests, density and crash risk.
 
-    Yield columns are member means with the 10th and 90th percentiles over members:
+    Yield columns are member means with the 10th and 90th percentiles over members
+    (``yield_pct10_t_ha``, ``yield_pct90_t_ha``: percentiles, not exceedance values):
     ``yield_t_ha`` [t ha-1 in the season], ``productivity_g_m2_d`` [g m-2 d-1 over the
     season's days]. ``harvest_volume_m3`` is per pond. ``p_crash`` is the share of
     members with at least one crash in the season; ``days_at_risk`` see :func:`at_risk`.
@@ -50,8 +51,8 @@ def season_table(ds: xr.Dataset) -> pd.DataFrame:
             rows.append({
                 "policy": str(pol), "season": str(season), "days": n_days,
                 "yield_t_ha": h.mean() * G_M2_TO_T_HA,
-                "yield_t_ha_p10": np.percentile(h, 10) * G_M2_TO_T_HA,
-                "yield_t_ha_p90": np.percentile(h, 90) * G_M2_TO_T_HA,
+                "yield_pct10_t_ha": np.percentile(h, 10) * G_M2_TO_T_HA,
+                "yield_pct90_t_ha": np.percentile(h, 90) * G_M2_TO_T_HA,
                 "productivity_g_m2_d": h.mean() / n_days,
                 "harvests": float((sub["harvest_fraction"].sel(policy=pol) > 0)
                                   .sum("day").mean()),
