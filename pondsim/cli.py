@@ -64,10 +64,12 @@ def _parser() -> argparse.ArgumentParser:
     w = sub.add_parser("weather", help="monthly weather, PAR and pond water table",
                        description="Print the monthly forcing table of a scenario or a "
                        "weather file: GHI, PAR, air and water temperature, wind, humidity, "
-                       "evaporation and makeup water.")
+                       "evaporation, rain, makeup water and (with a scenario) the hours "
+                       "of heat and cold stress.")
     w.add_argument("source", help="scenario .toml, or a weather file (EPW, TMY3, TMY2, "
                    "PVGIS, CSV)")
     w.add_argument("--plot", metavar="PATH", help="also save a figure (PNG)")
+    w.add_argument("--csv", metavar="PATH", help="also write the monthly table (CSV)")
     w.add_argument("--year", type=int, help="calendar year to place a typical year in")
     for name, unit in (("latitude", "deg"), ("longitude", "deg"), ("elevation", "m"),
                        ("utc-offset", "h")):
@@ -339,7 +341,14 @@ def cmd_weather(args) -> int:
     wind_h = scenario.weather.wind_height_m if scenario else 10.0
     water = thermal.water_temperature(forcing, pond, wind_height_m=wind_h,
                                       upper_limit_c=upper)
-    table = monthly_forcing_table(forcing, par, water, pond)
+    stress = None
+    if scenario:
+        from pondsim.pond.stress import monthly_stress_hours
+
+        st = scenario.strain
+        stress = monthly_stress_hours(water, t_min_c=st.t_min_c, t_opt_c=st.t_opt_c,
+                                      t_max_c=st.t_max_c)
+    table = monthly_forcing_table(forcing, par, water, pond, stress)
     title = meta.get("name", "site")
     print(f"{title}  (lat {meta.get('latitude'):.3f}, lon {meta.get('longitude'):.3f}, "
           f"{meta.get('elevation_m', float('nan')):.0f} m, UTC{meta.get('utc_offset_h'):+g} h)"
@@ -349,7 +358,16 @@ def cmd_weather(args) -> int:
         if not note.startswith("site check"):  # printed just above
             print(f"  note: {note}")
     print()
-    print(table.to_string(float_format=lambda v: f"{v:,.1f}"))
+    print(table.to_string(float_format=lambda v: f"{v:,.1f}", na_rep="no data"))
+    if stress is not None:
+        st = scenario.strain
+        print(f"(water stress hours for strain {st.name}: h > Topt {st.t_opt_c:g} degC, "
+              f"h > Tmax {st.t_max_c:g} degC, h < Tmin {st.t_min_c:g} degC; "
+              f"surface transfer: {pond.surface_transfer})")
+    if args.csv:
+        from pondsim.results.files import write_csv
+
+        print(f"table written: {write_csv(table, args.csv)}")
     frozen_days = int(water["frozen"].groupby(water.index.date).any().sum())
     print(f"\nfreezing days: {frozen_days}", end="")
     if upper is not None:
@@ -371,7 +389,7 @@ def cmd_weather(args) -> int:
             context = f"weather file {file}, pond depth {pond.depth_m:g} m"
         source = f"{file} ({station})" if station and station != file else file
         path = weather_figure(table, water, forcing, context, args.plot, par=par,
-                              source=source)
+                              source=source, stress=stress is not None)
         print(f"\nfigure written: {path}")
     return 0
 
@@ -394,11 +412,14 @@ def _print_written(files, written) -> None:
 
 
 def cmd_run(args) -> int:
+    import numpy as np
+    import pandas as pd
+
     from pondsim.glossary import CAUTION
     from pondsim.operations.simulate import simulate
     from pondsim.results.crashes import crashes_by_cause, print_crash_causes
     from pondsim.results.files import save, write_csv
-    from pondsim.results.tables import policy_summary
+    from pondsim.results.tables import monthly_pond_water, policy_summary
 
     scenario = load_checked_scenario(args)
     _check_memory(scenario, args.members or scenario.run.members)
@@ -408,10 +429,12 @@ def cmd_run(args) -> int:
         ds = simulate(scenario, members=args.members, seed=seed)
         elapsed = time.perf_counter() - t0
         summary = policy_summary(ds)
+        water = monthly_pond_water(ds)
         files.notes["site_check"] = ds.attrs["site_check"]
         written = [save(ds, files.dir / "results.nc"),
                    write_csv(summary, files.dir / "summary.csv"),
-                   write_csv(crashes_by_cause(ds), files.dir / "crashes_by_cause.csv")]
+                   write_csv(crashes_by_cause(ds), files.dir / "crashes_by_cause.csv"),
+                   write_csv(water, files.dir / "pond_water_monthly.csv")]
         if not args.no_plots:
             from pondsim.results.figures import run_figures
 
@@ -452,6 +475,21 @@ def cmd_run(args) -> int:
         print(f"WARNING: policy {p!r} converts more than 4.6 % of total solar radiation to "
               "biomass, above the published maximum for C3 photosynthesis (Zhu, Long & Ort "
               "2008); check the strain parameters.")
+    st = scenario.strain
+    yr = water.loc["year"]
+    print(f"\npond water: mean {yr['water_temperature_mean_c']:.1f} degC, evaporation "
+          f"{yr['evaporation_mm']:,.0f} mm, rain "
+          + ("no data" if np.isnan(yr["rain_mm"]) else f"{yr['rain_mm']:,.0f} mm")
+          + f" per year; hours above Topt {st.t_opt_c:g} degC: "
+          f"{yr['hours_above_t_opt']:,.0f}, above Tmax {st.t_max_c:g} degC: "
+          f"{yr['hours_above_t_max']:,.0f}, below Tmin {st.t_min_c:g} degC: "
+          f"{yr['hours_below_t_min']:,.0f}")
+    months = water.drop(index="year")
+    hot = months.index[months["hours_above_t_max"] > 0]
+    if len(hot):
+        print("  hours above Tmax by month: " + ", ".join(
+            f"{pd.Timestamp(2000, int(m), 1):%b} {months.loc[m, 'hours_above_t_max']:.0f}"
+            for m in hot))
     _print_written(files, written)
     print("\n" + CAUTION)
     return 0

@@ -14,6 +14,7 @@ from pondsim.glossary import CAUTION, RESULTS
 from pondsim.operations.crash import CAUSES
 from pondsim.operations.engine import HOURS_PER_DAY
 from pondsim.operations.harvest import floor_of, season_of_day, washed_out
+from pondsim.pond.stress import STRESS_COLUMNS
 
 
 def _attrs(name: str) -> dict:
@@ -65,7 +66,11 @@ def build_dataset(daily, drivers, hourly_sets, scenario, meta: dict, *,
                 values.append(np.full(n_days, np.nan))
                 continue
             v = h[column].to_numpy(dtype=float).reshape(n_days, HOURS_PER_DAY)
-            values.append((v.sum(axis=1) if how == "sum" else v.mean(axis=1)) * scale)
+            if how == "sum":  # over the known hours; a day without any stays NaN
+                day = np.where(np.isnan(v).all(axis=1), np.nan, np.nansum(v, axis=1))
+            else:
+                day = v.mean(axis=1)
+            values.append(day * scale)
         values = np.stack(values)
         if n_years == 1:
             return ("day",), values[0]
@@ -125,8 +130,14 @@ def build_dataset(daily, drivers, hourly_sets, scenario, meta: dict, *,
             "evaporation": forcing_var("evaporation", "evaporation", "sum"),
             "rain": forcing_var("rain", "rain", "sum", attrs={
                 "long_name": "rain falling on the pond", "units": "mm d-1"}),
+            "makeup": forcing_var("makeup", "makeup", "sum", attrs={
+                "long_name": "makeup water for evaporation net of rain, max(E - P, 0) "
+                             "hour by hour (unknown rain as none)", "units": "mm d-1"}),
             "ghi_daily": forcing_var("ghi_daily", "ghi", "sum", 3600e-6, attrs={
                 "long_name": "daily global horizontal irradiation", "units": "MJ m-2 d-1"}),
+            **{name: forcing_var(name, name, "sum", attrs={
+                "long_name": meaning + " (nominal strain)", "units": "h d-1"})
+               for name, meaning in STRESS_COLUMNS.items()},
         },
         coords={
             "policy": list(policy_names),

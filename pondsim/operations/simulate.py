@@ -17,6 +17,7 @@ from pondsim.operations.dataset import build_dataset
 from pondsim.operations.engine import HOURS_PER_DAY, Drivers, Operation, integrate
 from pondsim.operations.harvest import build_rules, floor_of
 from pondsim.pond import capacity, kinetics, light, thermal
+from pondsim.pond.stress import stress_flags
 from pondsim.scenario import Scenario
 
 
@@ -118,6 +119,10 @@ def _light_and_water(forcing: pd.DataFrame, scenario: Scenario) -> pd.DataFrame:
                                       wind_height_m=scenario.weather.wind_height_m,
                                       upper_limit_c=scenario.strain.t_max_c)
     out = water.copy()
+    st = scenario.strain
+    for name, flag in stress_flags(water["water_temperature"], t_min_c=st.t_min_c,
+                                   t_opt_c=st.t_opt_c, t_max_c=st.t_max_c).items():
+        out[name] = flag.astype(float)
     out["par"] = np.asarray(par, dtype=float)
     out["ghi"] = forcing["ghi"].to_numpy(dtype=float)
     ppj = scenario.light.photons_per_joule_umol

@@ -47,8 +47,10 @@ def _monthly_spread(daily: pd.Series) -> pd.DataFrame:
 
 
 def weather_figure(table: pd.DataFrame, water: pd.DataFrame, forcing: pd.DataFrame,
-                   title: str, path, *, par=None, source: str | None = None) -> Path:
-    """Monthly light, air and water temperature, water use and the energy budget.
+                   title: str, path, *, par=None, source: str | None = None,
+                   stress: bool = False) -> Path:
+    """Monthly light, air and water temperature, water use, the energy budget, rain and
+    (with *stress*: the table has the stress-hour columns) heat and cold stress hours.
 
     Parameters
     ----------
@@ -66,10 +68,12 @@ def weather_figure(table: pd.DataFrame, water: pd.DataFrame, forcing: pd.DataFra
         Hourly PAR entering the culture [umol m-2 s-1]; gives the daily spread of light.
     source : str, optional
         Weather source (file and station) for the footer.
+    stress : bool
+        Draw the strain's stress hours (``pondsim weather`` on a scenario).
     """
     months = np.arange(1, 13)
-    fig, axes = fs.new_figure("Weather, light and pond water by month", title, nrows=2,
-                              ncols=2, size=(12, 8.8), source=source)
+    fig, axes = fs.new_figure("Weather, light and pond water by month", title, nrows=3,
+                              ncols=2, size=(12, 12.6), source=source)
     day = pd.DatetimeIndex(pd.to_datetime(pd.Index(forcing.index.date)))
 
     ax = axes[0, 0]
@@ -146,6 +150,47 @@ def weather_figure(table: pd.DataFrame, water: pd.DataFrame, forcing: pd.DataFra
     ax.set_ylabel("mean heat flux into the pond [W m$^{-2}$]")
     ax.set_title("Monthly energy budget (gains up, losses down)", fontsize=10)
     fs.legend_right(ax)
+
+    ax = axes[2, 0]
+    rain = table["rain mm"].iloc[:12].to_numpy(dtype=float)
+    ax.bar(months, np.nan_to_num(rain), 0.7, color=fs.OKABE_ITO["sky blue"],
+           edgecolor="0.2", lw=0.5)
+    fs.month_axis(ax)
+    ax.set_ylabel("rain [mm month$^{-1}$]")
+    if np.isnan(rain).all():
+        fs.from_zero(ax, top=1.0)
+        ax.text(0.5, 0.5, "no rain data in the weather file\n(makeup water counts no rain)",
+                ha="center", va="center", transform=ax.transAxes, fontsize=10)
+        ax.set_title("Rain on the pond (the weather file has none)", fontsize=10)
+    else:
+        fs.from_zero(ax, top=1.15 * max(float(np.nanmax(rain)), 1.0))
+        for m in months[np.isnan(rain)]:
+            ax.text(m, 0, "no\ndata", ha="center", va="bottom", fontsize=7)
+        ax.set_title("Rain on the pond", fontsize=10)
+
+    ax = axes[2, 1]
+    if stress:
+        from pondsim.results.tables import STRESS_LABELS
+
+        names = {"h > Topt": "above optimum", "h > Tmax": "above maximum",
+                 "h < Tmin": "below minimum"}
+        colors = [fs.OKABE_ITO["orange"], fs.OKABE_ITO["vermillion"], fs.OKABE_ITO["blue"]]
+        top = 1.0
+        for i, label in enumerate(STRESS_LABELS.values()):
+            v = table[label].iloc[:12].to_numpy(dtype=float)
+            top = max(top, float(np.nanmax(v)))
+            ax.bar(months + (i - 1) * 0.27, v, 0.27, color=colors[i % 3],
+                   hatch=["", "//", ".."][i % 3], edgecolor="white",
+                   label=f"water {names.get(label, label)} temperature")
+        fs.month_axis(ax)
+        fs.from_zero(ax, top=1.15 * top)
+        ax.set_ylabel("hours per month [h]")
+        ax.set_title("Heat and cold stress of the strain", fontsize=10)
+        fs.legend_right(ax)
+    else:
+        ax.axis("off")
+        ax.text(0.5, 0.5, "stress hours need a strain:\nrun `pondsim weather` on a scenario",
+                ha="center", va="center", fontsize=10, transform=ax.transAxes)
     return fs.save(fig, path)
 
 

@@ -44,6 +44,12 @@ class Pond:
     heat_input_w_m2: float
     water_emissivity: float
     refractive_index: float
+    surface_transfer: str = "ryan_harleman"
+    ryan_harleman_wind_w_m2_hpa: float = 3.1
+    free_convection_w_m2_hpa_k13: float = 2.7
+    harbeck_prefactor: float = 0.291
+    harbeck_area_exponent: float = -0.05
+    sky_emissivity: str = "brutsaert"
 
     @property
     def farm_area_m2(self) -> float:

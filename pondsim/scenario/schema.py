@@ -91,6 +91,33 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "water_emissivity": Key("float", 0.97, "Longwave emissivity of water.", "1", 0.9, 1.0),
         "refractive_index": Key("float", 1.333, "Refractive index of the medium (Fresnel "
                                 "reflectance).", "1", 1.3, 1.4),
+        "surface_transfer": Key("str", "ryan_harleman", "Heat and vapour transfer at the "
+                                "pond surface: Ryan, Harleman & Stolzenbach (1974) cooling-"
+                                "pond formula (forced + free convection, the default: the "
+                                "one inside the FAO-56 check on most months), Harbeck (1962) "
+                                "area-dependent mass transfer + the same free convection, or "
+                                "the Penman open-water wind function (Shuttleworth 1993).",
+                                choices=("ryan_harleman", "harbeck", "penman_shuttleworth")),
+        "ryan_harleman_wind_w_m2_hpa": Key("float", 3.1, "Forced-convection coefficient b0 "
+                                           "of Ryan et al. (1974) in SI, per m s-1 of wind "
+                                           "at 2 m ([2]: 14 BTU ft-2 d-1 mph-1 mmHg-1).",
+                                           "W m-2 hPa-1 (m s-1)-1", 0.5, 10.0),
+        "free_convection_w_m2_hpa_k13": Key("float", 2.7, "Free-convection coefficient of "
+                                            "Ryan et al. (1974), acting only while the water "
+                                            "is warmer (in virtual temperature) than the air; "
+                                            "0 switches it off.", "W m-2 hPa-1 K-1/3",
+                                            0.0, 10.0),
+        "harbeck_prefactor": Key("float", 0.291, "Harbeck (1962) N = prefactor x area^"
+                                 "exponent, area of one pond in m2, wind at 2 m (from "
+                                 "memory; primary table not seen).",
+                                 "mm d-1 (m s-1)-1 hPa-1", 0.01, 2.0),
+        "harbeck_area_exponent": Key("float", -0.05, "Exponent of the area in Harbeck's N "
+                                     "(from memory).", "1", -0.5, 0.0),
+        "sky_emissivity": Key("str", "brutsaert", "Clear-sky emissivity used where the "
+                              "weather file has no valid infrared field: Brutsaert (1975), "
+                              "Swinbank (1963) or Idso & Jackson (1969), with the cloud "
+                              "correction of Crawford & Duchon (1999).",
+                              choices=("brutsaert", "swinbank", "idso_jackson")),
     },
     "light": {
         "par_fraction": Key("float", None, "PAR (400-700 nm) share of global irradiance "
