@@ -89,8 +89,8 @@ def _floor_columns(sub: xr.Dataset, pol) -> dict:
 COMPARISON_COLUMNS = {
     "days": ("days_in_season", "days", "count"),
     "yield_t_ha": ("yield_mean_t_ha_season", "yield t/ha/season", "mean"),
-    "yield_t_ha_p10": ("yield_pct10_t_ha_season", "yield t/ha/season", "pct10"),
-    "yield_t_ha_p90": ("yield_pct90_t_ha_season", "yield t/ha/season", "pct90"),
+    "yield_pct10_t_ha": ("yield_pct10_t_ha_season", "yield t/ha/season", "pct10"),
+    "yield_pct90_t_ha": ("yield_pct90_t_ha_season", "yield t/ha/season", "pct90"),
     "productivity_g_m2_d": ("productivity_mean_g_m2_d", "g/m2/d", "mean"),
     "harvests_median": ("harvests_median_per_season", "harvests/season", "median"),
     "harvest_volume_m3": ("harvest_volume_mean_m3_per_pond_season", "m3/pond/season",
