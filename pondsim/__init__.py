@@ -9,7 +9,7 @@ Data flow (one subpackage per stage; each imports only from the stages above it)
     results/      summary tables, figures, netCDF/CSV files
     studies/      compare, tune, outlook, inputs bill, calibration, screening
     report/       the HTML study report
-    cli.py        the ``pondsim`` command
+    cli/          the ``pondsim`` command
 
 Importing pondsim defines things and does nothing else.
 """

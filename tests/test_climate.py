@@ -16,7 +16,7 @@ from weather_fixtures import (
 )
 
 from pondsim.errors import InputError
-from pondsim.forcing import climate
+from pondsim.forcing import climate, synthetic
 from pondsim.forcing.weather import REQUIRED_COLUMNS, read_weather
 
 REPO = Path(__file__).resolve().parents[1]
@@ -199,13 +199,13 @@ def test_site_latitude_without_sunrise():
 # --------------------------------------------------------------------------- synthetic
 @pytest.fixture(scope="module")
 def synth():
-    return climate.synthetic_weather(**DESERT_SITE, normals=DESERT_NORMALS, seed=11)
+    return synthetic.synthetic_weather(**DESERT_SITE, normals=DESERT_NORMALS, seed=11)
 
 
 def test_synthetic_same_seed_same_table(synth):
-    again, _ = climate.synthetic_weather(**DESERT_SITE, normals=DESERT_NORMALS, seed=11)
+    again, _ = synthetic.synthetic_weather(**DESERT_SITE, normals=DESERT_NORMALS, seed=11)
     pd.testing.assert_frame_equal(synth[0], again)
-    other, _ = climate.synthetic_weather(**DESERT_SITE, normals=DESERT_NORMALS, seed=12)
+    other, _ = synthetic.synthetic_weather(**DESERT_SITE, normals=DESERT_NORMALS, seed=12)
     assert not np.allclose(other["ghi"], synth[0]["ghi"])
     assert not np.allclose(other["temp_air"], synth[0]["temp_air"])
     assert list(synth[0].columns) == COLUMNS and synth[1]["seed"] == 11
@@ -232,17 +232,17 @@ def test_markov_chain_expected_monthly_clearness():
     # 1.5 % of the normal (the chain's stationary mix is built to match it)
     rng = np.random.default_rng(5)
     month = pd.date_range("2025-01-01", "2025-12-31", freq="D").month.to_numpy()
-    k, cls = climate.daily_clearness_chain(month, DESERT_NORMALS["clearness"], rng, 400)
+    k, cls = synthetic.daily_clearness_chain(month, DESERT_NORMALS["clearness"], rng, 400)
     monthly = np.array([k[:, month == m].mean() for m in range(1, 13)])
     np.testing.assert_allclose(monthly, DESERT_NORMALS["clearness"], rtol=0.015)
     # class persistence: lag-1 autocorrelation of the class close to CLASS_PERSISTENCE
     c = cls[:, 120:240].astype(float)      # May-Aug
     a, b = c[:, :-1].ravel(), c[:, 1:].ravel()
-    assert np.corrcoef(a, b)[0, 1] == pytest.approx(climate.CLASS_PERSISTENCE, abs=0.05)
+    assert np.corrcoef(a, b)[0, 1] == pytest.approx(synthetic.CLASS_PERSISTENCE, abs=0.05)
 
 
 def test_synthetic_match_monthly_exact():
-    df, meta = climate.synthetic_weather(**DESERT_SITE, normals=DESERT_NORMALS, seed=3,
+    df, meta = synthetic.synthetic_weather(**DESERT_SITE, normals=DESERT_NORMALS, seed=3,
                                          match_monthly=True)
     np.testing.assert_allclose(_monthly_clearness(df), DESERT_NORMALS["clearness"],
                                rtol=0.005)
@@ -314,3 +314,58 @@ def test_demo_site_file_is_reproducible(tmp_path):
     clearness = (g["ghi"].sum() / g["ghi_clear"].sum()).to_numpy()
     # integer rounding of the EPW irradiance keeps the match within 1 %
     np.testing.assert_allclose(clearness, doc["normals"]["clearness"], rtol=0.01)
+
+
+# --------------------------------------------------------------------------- demo realism
+def _daily_stats(df):
+    d = df.groupby(df.index.floor("D"))
+    k = (d["ghi"].sum() / d["ghi_clear"].sum())
+    ghi_mj = d["ghi"].sum() * 3600 / 1e6
+    t = d["temp_air"].mean()
+    anomaly = (t - t.rolling(31, center=True, min_periods=10).mean()).to_numpy()
+    return k, ghi_mj, anomaly
+
+
+@pytest.mark.parametrize("seed", [2025, 7, 8])
+def test_synthetic_desert_year_day_to_day_like_real_records(seed):
+    # demo normals, several seeds (not only the shipped file)
+    doc = tomllib.loads((REPO / "weather" / "kestrel_flats_normals.toml").read_text())
+    site = {k: doc["site"][k] for k in ("latitude", "longitude", "elevation_m",
+                                        "utc_offset_h")}
+    df, _ = synthetic.synthetic_weather(**site, normals=doc["normals"], seed=seed,
+                                      match_monthly=True)
+    k, ghi_mj, anomaly = _daily_stats(df)
+    summer = pd.DatetimeIndex(k.index).month.isin([5, 6, 7, 8])
+    # pvlib's TMY files (measured for pondsim): May-Aug daily minimum 9.3 MJ m-2 d-1
+    # (Greensboro TMY3) and 9.8 (Miami TMY2), 0.34 and 0.41 of clear sky; a hot desert
+    # has no darker summer days (8 MJ / 0.3 allows for the draw): no near-dark day at
+    # all, let alone a multi-day spell (the old demo had six days at ~0.9 MJ in August)
+    assert ghi_mj[summer].min() > 8.0
+    assert k[summer].min() > 0.3
+    # daily mean air-temperature anomalies (about a 31-day running mean): lag-1
+    # autocorrelation 0.61-0.77 and SD 2.1-4.0 K in pvlib's Greensboro, Sand Point and
+    # Miami files (measured for pondsim); the band 0.6-0.8
+    a = anomaly[np.isfinite(anomaly)]
+    assert 0.55 <= np.corrcoef(a[:-1], a[1:])[0, 1] <= 0.85
+    assert 1.5 <= a.std() <= 4.0
+    # cloudy days cooler: daily clearness and mean-temperature anomalies correlate
+    # positively in summer (0.27-0.60 in the same files)
+    ka = (k - k.rolling(31, center=True, min_periods=10).mean()).to_numpy()
+    ok = summer & np.isfinite(anomaly)
+    assert np.corrcoef(ka[ok], anomaly[ok])[0, 1] > 0.15
+
+
+def test_synthetic_rain_to_monthly_normal_in_expectation():
+    normals = dict(DESERT_NORMALS, precipitation_mm=[20.0] * 6 + [40.0] * 6)
+    totals = []
+    for seed in range(12):
+        df, meta = synthetic.synthetic_weather(**DESERT_SITE, normals=normals, seed=seed)
+        totals.append(df["precipitation"].groupby(df.index.month).sum().to_numpy())
+        # rain falls only on cloudy days, at plausible hourly depths (weather reader range)
+        assert df["precipitation"].between(0.0, 200.0).all()
+    mean = np.mean(totals, axis=0)
+    # twelve draws: the mean of each half-year within 35 % of the normal (exponential
+    # amounts, a few wet days a month)
+    assert mean[:6].mean() == pytest.approx(20.0, rel=0.35)
+    assert mean[6:].mean() == pytest.approx(40.0, rel=0.35)
+    assert "rain on cloudy days" in meta["notes"][0]

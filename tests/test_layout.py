@@ -28,10 +28,6 @@ STAGES = {
 #: Longest module allowed [lines]. No generated data tables live in the package.
 MAX_LINES = 650
 
-#: Modules whose split along their own seams is in progress (each lands with the issue
-#: that reworks it); this set only shrinks.
-SPLIT_PENDING = {"pond/thermal.py", "report/build.py", "studies/calibrate.py"}
-
 
 def _modules():
     return sorted(p for p in PACKAGE.rglob("*.py") if "__pycache__" not in p.parts)
@@ -85,8 +81,6 @@ def test_no_relative_imports_hide_the_stage():
 @pytest.mark.parametrize("path", _modules(), ids=lambda p: str(p.relative_to(PACKAGE)))
 def test_modules_keep_to_one_topic(path):
     n = len(path.read_text(encoding="utf-8").splitlines())
-    if str(path.relative_to(PACKAGE)) in SPLIT_PENDING:
-        pytest.xfail("split pending")
     assert n <= MAX_LINES, f"{path.relative_to(PACKAGE)} has {n} lines (> {MAX_LINES})"
 
 

@@ -218,8 +218,10 @@ def test_run_killed_mid_write_leaves_the_previous_complete_set(sig, previous, tm
         assert F.verify_output_set(folder) == []
         manifest = json.loads((folder / F.MANIFEST_NAME).read_text())
         assert manifest["seed"] == 12 and set(manifest["files"]) == {
-            "results.nc", "summary.csv", F.README_NAME}
-        assert set(_snapshot(folder)) == {"results.nc", "summary.csv", F.README_NAME,
+            "results.nc", "summary.csv", "crashes_by_cause.csv", "pond_water_monthly.csv",
+            F.README_NAME}
+        assert set(_snapshot(folder)) == {"results.nc", "summary.csv", "crashes_by_cause.csv",
+                                          "pond_water_monthly.csv", F.README_NAME,
                                           F.MANIFEST_NAME}  # no figure of another run
 
 

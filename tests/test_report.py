@@ -12,6 +12,7 @@ from __future__ import annotations
 import argparse
 import base64
 import hashlib
+import json
 import os
 import re
 import shutil
@@ -299,7 +300,7 @@ def test_every_parameter_with_unit_value_and_source(small_scenario, report_dir, 
     default = keyed[("pond", "water_emissivity")]
     assert default["source"] == "default"
     assert default["note"] == SCHEMA["pond"]["water_emissivity"].doc
-    assert "ASSUMPTION" in keyed[("crash", "overshoot_onset")]["note"]
+    assert "ASSUMPTION" in keyed[("crash", "background_per_d")]["note"]
     assert keyed[("option", "weather_years")]["value"] == "2"
     page = _parse(page_text)
     rows = [a for t, a in page.tags if t == "tr"]
@@ -385,3 +386,84 @@ def _pdf_pages(exe, tmp_path, url, name) -> int:
     data = pdf.read_bytes()
     assert data.startswith(b"%PDF-")
     return len(re.findall(rb"/Type\s*/Page(?![s\w])", data))
+
+
+def _summary_page(page_text: str, paper: str) -> str:
+    """The report's header and summary section alone, printed on *paper*."""
+    head = re.search(r"<header>.*?</header>", page_text, re.S).group(0)
+    summary = re.search(r'<section id="summary".*?</section>', page_text, re.S).group(0)
+    return (f"<!DOCTYPE html><html><head><meta charset='utf-8'><style>{rep.CSS}"
+            f"@page {{ size: {paper}; }}</style></head><body>{head}<main>{summary}</main>"
+            "</body></html>")
+
+
+@pytest.mark.parametrize("paper", ["A4", "Letter"])
+def test_summary_prints_on_one_page(page_text, tmp_path, paper):
+    exe = _browser()
+    page = tmp_path / f"summary_{paper}.html"
+    page.write_text(_summary_page(page_text, paper), encoding="utf-8")
+    assert _pdf_pages(exe, tmp_path, page.as_uri(), f"summary_{paper}.pdf") == 1
+
+
+def test_summary_answers_from_the_outputs(small_scenario, report_dir, page_text, tmp_path):
+    from pondsim.report.summary import NOT_AVAILABLE, summary_section
+
+    page = _parse(page_text)
+    assert page.section_ids[0] == "summary"
+    annual = _csv(report_dir / "annual_yield.csv", index_col="policy")
+    manifest = json.loads((report_dir / rep.MANIFEST).read_text(encoding="utf-8"))
+    lead = manifest["lead_policy"]
+    cells = [v for v in page.values if v["table"] == "summary-answer"]
+    assert {c["col"] for c in cells} == {"P50_farm_t_yr", "P50_t_ha_yr", "P90_farm_t_yr",
+                                         "P90_t_ha_yr"}
+    for c in cells:
+        assert float(c["value"]) == annual.loc[lead, c["col"]]
+        shown, half = _shown(c["text"])
+        assert abs(shown - annual.loc[lead, c["col"]]) <= half * (1 + 1e-9)
+    best = _csv(report_dir / "best_by_season.csv", index_col="season")
+    plan = [c for c in page.values if c["table"] == "summary-plan"]
+    assert {c["row"]["data-season"] for c in plan} == set(best.index)
+    summary = re.search(r'<section id="summary".*?</section>', page_text, re.S).group(0)
+    # Sobol ranking: the three largest total indices, largest first.
+    sens = _csv(report_dir / "sensitivity.csv", index_col="parameter")
+    top = list(sens.sort_values("total", ascending=False).index[:3])
+    from pondsim.results.figures_outlook import parameter_label
+
+    positions = [summary.index(parameter_label(k)) for k in top]
+    assert positions == sorted(positions)
+    # No interval columns in this run's table: the summary says so instead of a number.
+    if "P50_low_farm_t_yr" not in annual.columns:
+        assert f"interval: {NOT_AVAILABLE}" in summary
+        # With interval columns (as an ensemble with Monte Carlo intervals writes them),
+        # the summary shows them.
+        copy = tmp_path / "copy"
+        shutil.copytree(report_dir, copy)
+        text = (copy / "annual_yield.csv").read_text(encoding="utf-8").splitlines()
+        header = text[1] + ",P50_low_farm_t_yr,P50_high_farm_t_yr,P90_low_farm_t_yr," \
+            "P90_high_farm_t_yr,confidence_pct"
+        rows = [r + ",1.25,2.5,0.75,1.5,95" for r in text[2:]]
+        (copy / "annual_yield.csv").write_text("\n".join([text[0], header, *rows]) + "\n",
+                                               encoding="utf-8")
+        body = summary_section(copy, load_scenario(small_scenario), manifest)
+        assert "95 % interval 1.2 to 2.5" in body and "95 % interval 0.8 to 1.5" in body
+        assert f"interval: {NOT_AVAILABLE}" not in body
+
+
+def test_summary_reads_a_priced_bill(small_scenario, report_dir, tmp_path):
+    """A bill with the priced columns (``total_cost_<currency>``, ``cost_per_t_<...>``)
+    gives the bill's headline cost; without them the summary says it is not priced."""
+    from pondsim.report.summary import NOT_AVAILABLE, summary_section
+
+    manifest = json.loads((report_dir / rep.MANIFEST).read_text(encoding="utf-8"))
+    scenario = load_scenario(small_scenario)
+    plain = summary_section(report_dir, scenario, manifest)
+    assert f"cost: {NOT_AVAILABLE} (not priced)" in plain
+    copy = tmp_path / "priced"
+    shutil.copytree(report_dir, copy)
+    lines = (copy / "inputs_bill.csv").read_text(encoding="utf-8").splitlines()
+    lines[0] += ",total_cost_EUR,cost_per_t_EUR"  # plain CSV: the header is the first line
+    lines[1:] = [row + ",12345.0,678.9" for row in lines[1:]]
+    (copy / "inputs_bill.csv").write_text("\n".join(lines) + "\n", encoding="utf-8")
+    priced = summary_section(copy, scenario, manifest)
+    assert "priced inputs 12,345 EUR per year, 679 EUR per tonne of product" in priced
+    assert "not priced" not in priced

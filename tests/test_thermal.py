@@ -13,7 +13,7 @@ from pvlib import clearsky, iotools, solarposition
 from scipy import optimize
 
 from pondsim.errors import InputError
-from pondsim.pond import thermal
+from pondsim.pond import longwave, thermal, transfer
 
 PVLIB_DATA = os.path.join(os.path.dirname(pvlib.__file__), "data")
 
@@ -123,7 +123,7 @@ def test_fao56_worked_examples():
           + thermal.saturation_vapour_pressure(25.0) * 0.54) / 2
     assert ea == pytest.approx(1.70, abs=0.005)
     # FAO-56 Example 14: 3.2 m/s at 10 m -> u2 = 2.4 m/s
-    assert thermal.wind_at_2m(3.2, 10.0) == pytest.approx(2.4, abs=0.05)
+    assert transfer.wind_at_2m(3.2, 10.0) == pytest.approx(2.4, abs=0.05)
 
 
 def test_fao56_vectorised_and_series():
@@ -135,17 +135,17 @@ def test_fao56_vectorised_and_series():
 
 def test_wind_height_range():
     with pytest.raises(InputError, match="wind_height_m"):
-        thermal.wind_at_2m(3.0, 0.1)
+        transfer.wind_at_2m(3.0, 0.1)
 
 
 def test_latent_heat_near_fao_constant():
     # FAO-56 (ch. 3, eq. 8 and Annex 3): λ = 2.45 MJ kg-1 at about 20 °C
-    assert thermal.latent_heat_vaporisation(20.0) == pytest.approx(2.45, abs=0.005)
+    assert transfer.latent_heat_vaporisation(20.0) == pytest.approx(2.45, abs=0.005)
 
 
 def test_wind_function_units():
     # Shuttleworth (1993) Handbook of Hydrology ch. 4: 6.43 (1 + 0.536 u2) MJ m-2 d-1 kPa-1
-    assert thermal.wind_function(2.0) * 86400 / 1e6 == pytest.approx(6.43 * 2.072)
+    assert transfer.wind_function(2.0) * 86400 / 1e6 == pytest.approx(6.43 * 2.072)
 
 
 # --- sky longwave ------------------------------------------------------------------------
@@ -155,7 +155,7 @@ def test_brutsaert_clear_sky_at_20c():
     # 311-339 W m-2 (Brutsaert 1975 Water Resour. Res. 11:742-744)
     f = _constant_forcing(1, temp_air=20.0, relative_humidity=50.0, ghi=700.0,
                           ghi_clear=700.0, solar_zenith=30.0)
-    clear = thermal.sky_longwave(f).iloc[0]
+    clear = longwave.sky_longwave(f).iloc[0]
     assert 311.0 <= clear <= 339.0
     # Swinbank (1963) L = 5.31e-13 T^6 [from memory for the coefficient]: within ~10 %
     assert clear == pytest.approx(5.31e-13 * 293.15 ** 6, rel=0.10)
@@ -166,27 +166,27 @@ def test_cloud_correction_raises_longwave():
     # an overcast sky with s = 0.2 radiates clf + (1 − clf) ε_clear of black body.
     clear = _constant_forcing(1, ghi=700.0, ghi_clear=700.0, solar_zenith=30.0)
     dull = _constant_forcing(1, ghi=140.0, ghi_clear=700.0, solar_zenith=30.0)
-    eps_clear = thermal.clear_sky_emissivity_brutsaert(
+    eps_clear = longwave.clear_sky_emissivity_brutsaert(
         0.5 * thermal.saturation_vapour_pressure(20.0), 20.0)
     black = thermal.STEFAN_BOLTZMANN * 293.15 ** 4
-    assert thermal.sky_longwave(dull).iloc[0] == pytest.approx(
+    assert longwave.sky_longwave(dull).iloc[0] == pytest.approx(
         black * (0.8 + 0.2 * eps_clear), rel=1e-9)
-    assert thermal.sky_longwave(dull).iloc[0] > thermal.sky_longwave(clear).iloc[0]
+    assert longwave.sky_longwave(dull).iloc[0] > longwave.sky_longwave(clear).iloc[0]
 
 
 def test_cloud_fraction_carried_through_night():
     idx = pd.date_range("2025-07-01", periods=6, freq="h", tz="Etc/GMT+7")
     ghi = pd.Series([0.0, 300.0, 100.0, 0.0, 0.0, 0.0], idx)
     clear = pd.Series([0.0, 600.0, 400.0, 10.0, 0.0, 0.0], idx)
-    clf = thermal.cloud_fraction_crawford_duchon(ghi, clear)
+    clf = longwave.cloud_fraction_crawford_duchon(ghi, clear)
     np.testing.assert_allclose(clf.to_numpy(), [0.5, 0.5, 0.75, 0.75, 0.75, 0.75])
 
 
 def test_ir_horizontal_used_when_plausible():
     f = _constant_forcing(3, ghi=500.0, ghi_clear=600.0, solar_zenith=40.0)
     f["ir_horizontal"] = [350.0, 9999.0, np.nan]
-    lw = thermal.sky_longwave(f)
-    formula = thermal.sky_longwave(f.drop(columns="ir_horizontal"))
+    lw = longwave.sky_longwave(f)
+    formula = longwave.sky_longwave(f.drop(columns="ir_horizontal"))
     assert lw.iloc[0] == 350.0
     assert lw.iloc[1] == formula.iloc[1] and lw.iloc[2] == formula.iloc[2]
     terms = thermal.heat_exchange_inputs(f, _pond())
@@ -334,9 +334,10 @@ def test_greensboro_plausible(greensboro, greensboro_run):
                                   greensboro_run["water_temperature"] > 30.0)
 
 
-def test_hot_dry_summer_evaporation():
+@pytest.mark.parametrize("model", ["penman_shuttleworth", "ryan_harleman"])
+def test_hot_dry_summer_evaporation(model):
     f = _hot_dry_forcing(30)
-    pond = _pond(depth_m=0.2, ground_temperature_c=24.0)
+    pond = _pond(depth_m=0.2, ground_temperature_c=24.0, surface_transfer=model)
     out = thermal.water_temperature(f, pond)
     daily = thermal.daily_thermal_summary(out, pond)
     evaporation = daily["evaporation"].mean()
@@ -349,12 +350,13 @@ def test_hot_dry_summer_evaporation():
     es_air = thermal.saturation_vapour_pressure(f["temp_air"]).mean()
     delta = thermal.slope_saturation_vapour_pressure(t_air)
     gamma = thermal.psychrometric_constant(97.0)
-    u2 = thermal.wind_at_2m(3.0, 10.0)
+    u2 = transfer.wind_at_2m(3.0, 10.0)
     ea_mj = 6.43 * (1 + 0.536 * u2) * (es_air - e_a)  # MJ m-2 d-1
     rn_mj = out[["q_shortwave", "q_longwave_in", "q_longwave_out"]].sum(axis=1).mean() \
         * 86400 / 1e6
     penman = (delta * rn_mj + gamma * ea_mj) / (delta + gamma) / 2.45  # mm d-1
-    assert evaporation == pytest.approx(penman, rel=0.15)
+    if model == "penman_shuttleworth":  # the combination equation of the same wind function
+        assert evaporation == pytest.approx(penman, rel=0.15)
     # REFERENCES.md [M]: open ponds in arid climates lose ~5-10 mm/day in summer (from
     # memory). An isolated pond in a dry, hot July takes extra heat from the air (the
     # oasis effect; convection is a gain here), so this extreme month may sit up to
@@ -379,7 +381,8 @@ def test_makeup_rain_and_daily_summary():
     t_w = out["water_temperature"]
     expected = 4186.0 / 3600.0 * (out["makeup"] * (18.0 - t_w)
                                   + out["rain"] * (f["temp_air"] - t_w))
-    np.testing.assert_allclose(out["q_makeup"], expected, rtol=1e-9, atol=1e-9)
+    # (hours split into sub-steps report sub-step means of this product: within 2 %)
+    np.testing.assert_allclose(out["q_makeup"], expected, rtol=2e-2, atol=1e-3)
     assert (out["q_makeup"][rain == 0] < 0).all()
     daily = thermal.daily_thermal_summary(out, pond)
     assert len(daily) == 4

@@ -6,10 +6,9 @@ Two generators return the same table as :func:`pondsim.forcing.weather.read_weat
 * :func:`clearsky_weather` — every day of a month alike: Ineichen clear-sky GHI scaled
   to the month's clearness, Parton & Logan (1981) diurnal air temperature through the
   month's mean daily maximum and minimum, constant wind, RH from the normal.
-* :func:`synthetic_weather` — the same, with day-to-day weather: a first-order Markov
-  chain of daily clearness classes (clear / partly cloudy / overcast) in the manner of
-  Aguiar, Collares-Pereira & Conde (1988), and daily temperature anomalies tied to the
-  day's cloudiness with AR(1) persistence, in the manner of Richardson (1981).
+* :func:`pondsim.forcing.synthetic.synthetic_weather` — the same, with day-to-day
+  weather (Markov chain of daily clearness classes, cloud-tied persistent temperature
+  anomalies, rain on cloudy days); it uses this module's common core.
 
 ``python -m pondsim.forcing.climate NORMALS.toml OUT.epw [--seed N]`` writes an EPW file from a
 TOML file with a ``[site]`` and a ``[normals]`` table (see ``weather/README.md``).
@@ -46,8 +45,6 @@ __all__ = [
     "validate_normals",
     "parton_logan_temperature",
     "clearsky_weather",
-    "synthetic_weather",
-    "daily_clearness_chain",
     "write_epw",
     "main",
 ]
@@ -61,6 +58,8 @@ NORMALS = {
     "relative_humidity_pct": ("mean relative humidity", "%", 1.0, 100.0),
     "clearness": ("mean daily GHI / clear-sky daily GHI", "1", 0.2, 1.0),
     "ghi_kwh_m2_d": ("mean daily global horizontal insolation", "kWh m-2 d-1", 0.0, 12.0),
+    "precipitation_mm": ("mean monthly precipitation (synthetic weather only)", "mm",
+                         0.0, 2000.0),
 }
 _REQUIRED_NORMALS = ("temp_max_c", "temp_min_c", "wind_speed_m_s", "relative_humidity_pct")
 
@@ -69,25 +68,6 @@ _REQUIRED_NORMALS = ("temp_max_c", "temp_min_c", "wind_speed_m_s", "relative_hum
 #: c = lag of the minimum after sunrise [h].
 PARTON_LOGAN_150CM = {"a": 1.86, "b": 2.20, "c": -0.17}
 
-#: Daily clearness of the three weather classes of the synthetic generator, relative to
-#: the day's clear-sky insolation [1]. Equal spacing makes the mean linear in the class
-#: mix (see :func:`_class_probabilities`); chosen for pondsim.
-CLASS_CLEARNESS = (1.0, 0.6, 0.2)
-#: Half-width of the uniform within-class spread of daily clearness (clear days: none).
-CLASS_SPREAD = (0.0, 0.1, 0.1)
-#: Probability of keeping yesterday's class before the stationary redraw; gives a lag-1
-#: autocorrelation of the class of about this value (chosen; daily clearness index
-#: autocorrelations of ~0.2–0.4 are typical, from memory).
-CLASS_PERSISTENCE = 0.3
-#: Daily Tmax / Tmin anomaly per unit of clearness anomaly [degC]: clear days warmer
-#: maxima, cooler minima (chosen for pondsim; signs after Richardson 1981).
-TEMP_MAX_PER_CLEARNESS = 10.0
-TEMP_MIN_PER_CLEARNESS = -4.0
-#: AR(1) residuals of daily Tmax and Tmin: lag-1 coefficient, SD [degC], and the
-#: correlation of the two innovations (chosen, of the order Richardson 1981 reports).
-TEMP_AR1 = 0.65
-TEMP_RESIDUAL_SD_C = 1.5
-TEMP_INNOVATION_CORR = 0.5
 #: Smallest diurnal range kept after adding anomalies [degC].
 MIN_DIURNAL_RANGE_C = 2.0
 
@@ -411,165 +391,6 @@ def _daily_temperature(index, n_days, rise, sset, tx, tn):
     return _match_daily_extremes(temp, day, tx, tn)
 
 
-def _class_probabilities(clearness):
-    """Stationary class probabilities (clear, partly, overcast) for a mean clearness.
-
-    A binomial mix ``((1-s)^2, 2s(1-s), s^2)`` over the equally spaced class clearness
-    values of :data:`CLASS_CLEARNESS` has mean ``c0 - 2 s (c0 - c1)``, so
-    ``s = (c0 - K) / (c0 - c2)``.
-    """
-    c0, _, c2 = CLASS_CLEARNESS
-    s = np.clip((c0 - np.asarray(clearness, dtype=float)) / (c0 - c2), 0.0, 1.0)
-    return np.stack([(1 - s) ** 2, 2 * s * (1 - s), s ** 2], axis=-1)
-
-
-def daily_clearness_chain(month_of_day, clearness, rng, n_series=1):
-    """Daily clearness from a first-order Markov chain of weather classes.
-
-    Parameters
-    ----------
-    month_of_day : array-like of int (1..12), length n_days
-    clearness : array-like, 12 values
-        Target mean clearness of each month.
-    rng : numpy.random.Generator
-    n_series : int
-        Independent series generated side by side.
-
-    Returns
-    -------
-    k : ndarray, shape (n_series, n_days)
-        Daily clearness (daily GHI / clear-sky daily GHI).
-    cls : ndarray of int, same shape
-        Class index: 0 clear, 1 partly cloudy, 2 overcast.
-
-    Notes
-    -----
-    Transition matrix of month *m*: ``P = rho I + (1 - rho) 1 pi_m^T`` (keep the class
-    with probability ``rho`` = :data:`CLASS_PERSISTENCE`, else draw from ``pi_m``).
-    Its stationary distribution is ``pi_m`` (:func:`_class_probabilities`), so the
-    expected monthly mean clearness equals the normal; ``rho`` sets the persistence of
-    spells. The class idea follows Aguiar, Collares-Pereira & Conde (1988), Solar Energy
-    40:269–279, who tabulate Markov transition matrices of daily clearness classes.
-    """
-    month_of_day = np.asarray(month_of_day, dtype=int)
-    n_days = len(month_of_day)
-    pi = _class_probabilities(clearness)            # (12, 3)
-    cum = np.cumsum(pi, axis=1)
-    keep = rng.random((n_series, n_days)) < CLASS_PERSISTENCE
-    draw_u = rng.random((n_series, n_days))
-    spread_u = rng.uniform(-1.0, 1.0, (n_series, n_days))
-    cls = np.empty((n_series, n_days), dtype=int)
-    for d in range(n_days):
-        fresh = (draw_u[:, d][:, None] > cum[month_of_day[d] - 1][None, :-1]).sum(axis=1)
-        if d == 0:
-            cls[:, 0] = fresh
-        else:
-            cls[:, d] = np.where(keep[:, d], cls[:, d - 1], fresh)
-    centre = np.asarray(CLASS_CLEARNESS)[cls]
-    k = centre + np.asarray(CLASS_SPREAD)[cls] * spread_u
-    return k, cls
-
-
-def _match_monthly(k, h0, month_of_day, kmon):
-    """Scale each month's daily clearness so the insolation-weighted mean is the target,
-    keeping every day at or below clear sky (clipped days fixed, the rest rescaled)."""
-    k = k.copy()
-    for m in range(1, 13):
-        sel = month_of_day == m
-        w = h0[sel]
-        km = k[sel]
-        target = kmon[m - 1] * w.sum()
-        for _ in range(20):
-            capped = km >= 1.0
-            free = (km * w)[~capped].sum()
-            if free <= 0:
-                break
-            km = np.where(capped, 1.0, km * (target - w[capped].sum()) / free)
-            km = np.minimum(km, 1.0)
-            if abs((km * w).sum() - target) < 1e-9 * target:
-                break
-        k[sel] = km
-    return k
-
-
-def _temperature_anomalies(k, kmon_day, rng):
-    """Daily Tmax/Tmin anomalies [degC]: cloudiness-tied part plus AR(1) residuals."""
-    n = len(k)
-    corr = np.array([[1.0, TEMP_INNOVATION_CORR], [TEMP_INNOVATION_CORR, 1.0]])
-    chol = np.linalg.cholesky(corr)
-    z = rng.standard_normal((n, 2)) @ chol.T
-    eps = np.empty((n, 2))
-    eps[0] = z[0] * TEMP_RESIDUAL_SD_C
-    scale = TEMP_RESIDUAL_SD_C * np.sqrt(1.0 - TEMP_AR1 ** 2)
-    for d in range(1, n):
-        eps[d] = TEMP_AR1 * eps[d - 1] + scale * z[d]
-    dk = k - kmon_day
-    return (TEMP_MAX_PER_CLEARNESS * dk + eps[:, 0],
-            TEMP_MIN_PER_CLEARNESS * dk + eps[:, 1])
-
-
-def synthetic_weather(*, latitude, longitude, elevation_m, utc_offset_h, normals, seed,
-                      year=2025, name="site", match_monthly=False, source=None):
-    """Hourly forcing from monthly normals with seeded day-to-day weather.
-
-    Parameters
-    ----------
-    latitude, longitude, elevation_m, utc_offset_h, normals, year, name, source
-        As :func:`clearsky_weather`.
-    seed : int
-        Seed of :func:`numpy.random.default_rng`; the same seed gives the same table.
-    match_monthly : bool
-        False (default): each month's mean clearness and temperatures match the normals
-        in expectation and vary from one seed (one "year") to another, as real years do.
-        True: daily clearness is rescaled so each month's mean clearness equals the
-        normal exactly (clear days stay at clear sky).
-
-    Returns
-    -------
-    data, meta
-        As :func:`clearsky_weather`; ``meta['seed']`` and notes record the generator.
-
-    Notes
-    -----
-    * Daily clearness: :func:`daily_clearness_chain` (three classes, first-order Markov
-      chain, after Aguiar, Collares-Pereira & Conde 1988, Solar Energy 40:269–279); the
-      day's hourly GHI is its clear-sky GHI times the day's clearness.
-    * Daily Tmax/Tmin: normal + :data:`TEMP_MAX_PER_CLEARNESS` (resp. ``MIN``) times the
-      day's clearness anomaly + correlated AR(1) residuals, the structure of Richardson
-      (1981), Water Resour. Res. 17:182–190 (residuals conditioned on the day's state,
-      lag-1 persistence); Tmin is kept at least :data:`MIN_DIURNAL_RANGE_C` below Tmax.
-    * Hours, humidity, wind and pressure as in :func:`clearsky_weather`.
-    """
-    nrm = validate_normals(normals, path=source)
-    site = _validate_site(latitude, longitude, elevation_m, utc_offset_h, path=source)
-    lat, lon, elev, off = (site[k] for k in ("latitude", "longitude", "elevation_m",
-                                             "utc_offset_h"))
-    rng = np.random.default_rng(seed)
-    index, n_days, pressure, rise, sset = _base(lat, lon, elev, off, year)
-    month_of_day = np.asarray(index.month[::24])
-    h0 = _clearsky_daily(index, lat, lon, elev, pressure)
-    kmon, kind = _monthly_clearness(nrm, h0, month_of_day, source)
-    k, _ = daily_clearness_chain(month_of_day, kmon, rng)
-    k = k[0]
-    if match_monthly:
-        k = _match_monthly(k, h0, month_of_day, kmon)
-    m = month_of_day - 1
-    dtx, dtn = _temperature_anomalies(k, kmon[m], rng)
-    tx = nrm["temp_max_c"][m] + dtx
-    tn = np.minimum(nrm["temp_min_c"][m] + dtn, tx - MIN_DIURNAL_RANGE_C)
-    temp = _daily_temperature(index, n_days, rise, sset, tx, tn)
-    rh = _humidity(temp, n_days, nrm["relative_humidity_pct"][m])
-    wind = np.repeat(nrm["wind_speed_m_s"][m], 24)
-    notes = [f"synthetic weather from monthly normals ({kind}), seed {seed}: Markov chain "
-             "of daily clearness classes, cloud-tied AR(1) temperature anomalies"
-             + ("; monthly clearness matched exactly" if match_monthly else "")]
-    df, meta = _finish(index, lat, lon, elev, pressure, temp, rh, wind, np.repeat(k, 24),
-                       name, notes, "synthetic", year, off,
-                       str(source) if source else "normals")
-    meta["seed"] = seed
-    return df, meta
-
-
 # --------------------------------------------------------------------------- command line
 def _load_normals_toml(path: Path):
     if not path.is_file():
@@ -617,6 +438,8 @@ def main(argv=None) -> int:
         if args.seed is None:
             df, meta = clearsky_weather(**common)
         else:
+            from pondsim.forcing.synthetic import synthetic_weather
+
             df, meta = synthetic_weather(seed=args.seed, match_monthly=args.match_monthly,
                                          **common)
         write_epw(df, meta, args.out)

@@ -194,6 +194,12 @@ def _fill_column(values: np.ndarray, max_gap_h: int, cyclic: bool):
     return v, filled, too_long
 
 
+#: Largest plausible mean rain depth over the wet hours of a record [mm h-1]; above it
+#: the precipitation column is taken as not hourly (assumption: climatological mean
+#: hourly intensities are a few mm h-1 even in the tropics, from memory).
+PRECIP_WET_HOUR_MAX_MM = 10.0
+
+
 def _check_range(df, col, path, notes, *, source_label=None) -> bool:
     """Clip tolerated excursions and check the range; False means 'drop' (optional)."""
     lo, hi = RANGES[col]
@@ -210,6 +216,13 @@ def _check_range(df, col, path, notes, *, source_label=None) -> bool:
             notes.append(f"clipped {int(over.sum())} relative_humidity values in "
                          f"100-{RH_CLIP_PCT:g} % to 100 %")
     bad = (v < lo) | (v > hi)
+    if bad.any() and col == "precipitation":
+        # A few impossible hours (e.g. TMY3 flag values) must not cost the whole record:
+        # set them to missing and say how many.
+        v = np.where(bad, np.nan, v)
+        notes.append(f"set {int(bad.sum())} impossible precipitation values (outside "
+                     f"{lo:g}-{hi:g} {UNITS[col]}) to missing")
+        bad = np.zeros_like(bad)
     if bad.any():
         i = int(np.flatnonzero(bad)[0])
         where = f" at {df.index[i]:%Y-%m-%d %H:%M}"
@@ -333,6 +346,29 @@ def _assemble(raw: RawWeather, path: Path, site: dict, year, max_gap_h) -> tuple
         if data[col].isna().all():
             data = data.drop(columns=col)
             continue
+        if col == "precipitation":
+            # Rain is not interpolated: unknown hours stay missing ("no data", never 0)
+            # and the rest of the record is kept.
+            v = data[col].to_numpy(dtype=float)
+            wet = v > 0
+            if wet.sum() >= 50 and np.nanmean(v[wet]) > PRECIP_WET_HOUR_MAX_MM:
+                # every hour may be possible while the record is not: a mean over the
+                # wet hours this high means the values are not hourly depths
+                notes.append(f"precipitation dropped (no data): its wet hours "
+                             f"average {np.nanmean(v[wet]):.1f} mm h-1 (> "
+                             f"{PRECIP_WET_HOUR_MAX_MM:g}), {np.nansum(v):,.0f} mm in all, "
+                             "not a plausible hourly record")
+                data = data.drop(columns=col)
+                continue
+            n_nan = int(data[col].isna().sum())
+            if 2 * n_nan > len(data):
+                # mostly unknown: no rain record at all ("no data"), not a sparse one
+                notes.append(f"precipitation dropped (no data): missing in {n_nan} of "
+                             f"{len(data)} hours")
+                data = data.drop(columns=col)
+            elif n_nan:
+                notes.append(f"precipitation missing (no data) in {n_nan} hours")
+            continue
         v, filled, too_long = _fill_column(data[col].to_numpy(), int(max_gap_h), typical)
         if too_long is not None:
             data = data.drop(columns=col)
@@ -425,9 +461,13 @@ def read_weather(path, *, fmt="auto", latitude=None, longitude=None, elevation_m
 
     Notes
     -----
-    Optional columns (``precipitation``, ``ir_horizontal``) are kept only where the file
-    has them without long gaps and within range; otherwise they are dropped with a note
-    (e.g. the precipitation of some TMY3 files is unusable). Source time conventions
+    Optional columns (``precipitation``, ``ir_horizontal``) are kept where the file has
+    them. ``ir_horizontal`` with long gaps or out of range is dropped with a note;
+    impossible ``precipitation`` hours (outside 0-200 mm) are set to missing and, like
+    the file's own gaps, stay missing (NaN, "no data", not interpolated) with a count
+    in the notes; the rest of the record is kept. A precipitation record missing in more
+    than half of its hours, or whose wet hours average more than 10 mm h-1 (not hourly
+    depths), is dropped with a note (no data). Source time conventions
     are normalised at the boundary; see the module docstring.
     """
     path = Path(path)

@@ -11,8 +11,11 @@ constant (the forcing is an hour mean). Dark hours have an exact solution,
 X(t + h) = X(t)·exp(−m·h), and take it. Harvests happen at a fixed hour of the day,
 before that hour's growth step; crash draws happen at the end of the day.
 
-Every gram is booked: per member, inoculated + grown − respired − removed − lost equals
-the final standing stock, to rounding. :func:`integrate` raises if it does not.
+Every gram is booked: per member, inoculated + grown − respired − removed − salvaged −
+lost equals the final standing stock, to rounding. :func:`integrate` raises if it does
+not. "Respired" includes die-back (a negative gross growth of the logistic form above its
+capacity). "Removed" is what the harvest rules send to harvest; what a crash leaves
+(salvaged) is booked apart, so a run without harvests removes nothing.
 """
 
 from __future__ import annotations
@@ -22,7 +25,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from pondsim.operations.harvest import HarvestRules, removal_fraction
+from pondsim.operations.crash import WeatherStress, net_loss_today
+from pondsim.operations.harvest import HarvestRules, cut_back_to_floor, removal_fraction
 from pondsim.pond import kinetics
 
 HOURS_PER_DAY = 24
@@ -56,6 +60,12 @@ class Drivers:
         Name in :data:`pondsim.pond.kinetics.LIGHT_RESPONSES`.
     growth_form : {"self_shading", "logistic"}
     depth_m : float [m]
+    water_temperature : ndarray, shape (f, n_hours), optional [degC]
+        Hour-mean water temperature, for the weather terms of the crash hazard (without
+        it the crash hazard sees a constant water temperature at the background's
+        reference and no heat or cold stress).
+    t_max_c : ndarray, shape (f,), optional [degC]
+        Strain's maximum temperature for growth (heat stress of the crash hazard).
     """
 
     par: np.ndarray
@@ -69,6 +79,8 @@ class Drivers:
     light_model: str
     growth_form: str
     depth_m: float
+    water_temperature: np.ndarray | None = None
+    t_max_c: np.ndarray | None = None
 
     @property
     def n_sets(self) -> int:
@@ -89,9 +101,9 @@ class Operation:
 
     Attributes
     ----------
-    start_day : int
-        Day of the year (0-based) on which ponds are inoculated.
-    inoculum_g_m3 : float [g m-3]
+    start_day : int or ndarray of int (n,)
+        Day of the year (0-based) on which ponds are inoculated (one per member allowed).
+    inoculum_g_m3 : float or ndarray (n,) [g m-3]
     restart_days : int [d]
         Days out of service after a crash before reinoculation.
     harvest_hour : int [h]
@@ -101,19 +113,25 @@ class Operation:
     max_fraction : float [-]
         Daily harvest capacity as a share of pond volume.
     min_density_g_m3 : float [g m-3]
+        Below this density nothing is harvested.
+    floor_g_m3 : float [g m-3]
+        Viable-density floor: no harvest leaves the culture below it (0: none; the
+        scenario's default is the inoculation density, see
+        :func:`pondsim.operations.simulate.operation_of`).
     sample_hour : int, optional [h]
         Also record the density at the start of this local hour each day (after that
         hour's harvest), as a pilot pond's daily sample would see it.
     """
 
-    start_day: int = 0
-    inoculum_g_m3: float = 50.0
+    start_day: int | np.ndarray = 0
+    inoculum_g_m3: float | np.ndarray = 50.0
     restart_days: int = 7
     harvest_hour: int = 9
     recovery_efficiency: float = 1.0
     max_fraction: float = 1.0
     min_density_g_m3: float = 0.0
     sample_hour: int | None = None
+    floor_g_m3: float = 0.0
 
 
 @dataclass
@@ -121,14 +139,18 @@ class Daily:
     """Daily outputs of :func:`integrate` (arrays of shape (n_members, n_days)).
 
     density [g m-3] at the end of the day; removed [g m-3] culture biomass sent to harvest
-    (before recovery losses, including what a crash salvages); harvest_fraction [-] of
-    the volume; growth_rate [d-1] mean net specific rate; lost [g m-3] biomass lost to
-    crashes; crashed (bool); hazard [d-1] crash hazard at the end of the day; status
-    (0 growing, 1 restarting after a crash, 2 not yet inoculated); sampled [g m-3]
-    density at ``Operation.sample_hour`` (None unless asked). ``ledger`` holds the
-    per-member totals [g m-3]: inoculated, grown, respired, removed, lost, final;
-    ``grown`` and ``respired`` [g m-3] are the same two terms per day (gross growth and
-    maintenance respiration of the day, as booked in the ledger).
+    by the harvest rules (before recovery losses); harvest_fraction [-] of the volume;
+    growth_rate [d-1] mean net specific rate; lost [g m-3] biomass lost to crashes;
+    salvaged [g m-3] the rest of a crashed culture (not harvest); crashed (bool); cause
+    (int8: 0 none, else 1 + index in :data:`pondsim.operations.crash.CAUSES`); hazard
+    [d-1] crash hazard at the end of the day; status (0 growing, 1 restarting after a
+    crash, 2 not yet inoculated); sampled [g m-3] density at ``Operation.sample_hour``
+    (None unless asked); at_floor (bool) the culture was at its viable floor at the
+    harvest hour (see :func:`pondsim.operations.harvest.cut_back_to_floor`). ``ledger``
+    holds the per-member totals [g m-3]: inoculated, grown, respired, removed, salvaged, lost,
+    final; ``grown`` and ``respired`` [g m-3]
+    are the same two terms per day (gross growth and maintenance respiration, with any
+    die-back, of the day, as booked in the ledger).
     """
 
     density: np.ndarray
@@ -141,6 +163,9 @@ class Daily:
     status: np.ndarray
     ledger: dict
     sampled: np.ndarray | None = None
+    at_floor: np.ndarray | None = None
+    salvaged: np.ndarray | None = None
+    cause: np.ndarray | None = None
     grown: np.ndarray | None = None
     respired: np.ndarray | None = None
 
@@ -251,21 +276,61 @@ def _rates_factory(drivers: Drivers, set_of_member):
             mu_t, mean_response, m = factors
             return mu_t * mean_response(tau_slope * x + tau_zero), m
     elif drivers.growth_form == "logistic":
+        day_cache: dict = {}
+
+        def day_factors(day):
+            # Daily means of r and m, and the gross-growth capacity K_g that makes K the
+            # day's equilibrium with maintenance included (see logistic_gross_capacity).
+            if day not in day_cache:
+                day_cache.clear()
+                hours = range(day * HOURS_PER_DAY, (day + 1) * HOURS_PER_DAY)
+                r_mean = sum(kinetics.specific_growth_logistic_r(
+                    par(h), ftemp(h), mu_max=mu, model=model, param=param)
+                    for h in hours) / HOURS_PER_DAY
+                m_mean = sum(maint(h) for h in hours) / HOURS_PER_DAY
+                day_cache[day] = logistic_inverse_capacity(cap(day), r_mean, m_mean)
+            return day_cache[day]
+
         def hour_factors(hour, day):
             r = kinetics.specific_growth_logistic_r(par(hour), ftemp(hour), mu_max=mu,
                                                     model=model, param=param)
-            k_day = cap(day)
-            inv_k = np.where(k_day > 0, 1.0 / np.maximum(k_day, 1e-300), np.inf)
-            return r, inv_k, maint(hour)
+            grows, inv_kg = day_factors(day)
+            return np.where(grows, r, 0.0), inv_kg, maint(hour)
 
         def rates(x, factors):
-            r, inv_k, m = factors
-            # Above K the logistic term is negative: a die-back, booked as negative growth.
-            return r * (1.0 - x * inv_k), m
+            r, inv_kg, m = factors
+            # Above K_g the logistic term is negative: a die-back (booked as respired).
+            return r * (1.0 - x * inv_kg), m
     else:
         raise ValueError(f"unknown growth form {drivers.growth_form!r}; "
                          "choose 'self_shading' or 'logistic'")
     return hour_factors, rates
+
+
+def logistic_inverse_capacity(k_day, r_mean, m_mean):
+    """``(grows, 1/K_g)`` of the logistic form for a day with carrying capacity K.
+
+    The logistic form dX/dt = r(t)·X·(1 − X/K_g) − m(t)·X has, over a day of nearly
+    constant X, zero net growth where Σr·(1 − X/K_g) = Σm, i.e. X = K_g·(1 − m̄/r̄). So
+    K (the day's equilibrium, maintenance included) needs K_g = K / (1 − m̄/r̄), taken
+    when r̄ > m̄; where r̄ <= m̄ the culture declines whatever K and the gross term has no
+    limit (1/K_g = 0). Where K = 0 (no net growth possible that day) the gross growth is
+    switched off (``grows`` False) and the culture only respires: finite, no 0·inf.
+
+    Parameters
+    ----------
+    k_day : array [g m-3]
+    r_mean, m_mean : array [d-1]
+        Day means of the logistic r and of the maintenance rate.
+    """
+    k_day = np.asarray(k_day, dtype=float)
+    r_mean = np.asarray(r_mean, dtype=float)
+    grows = k_day > 0
+    with np.errstate(divide="ignore", invalid="ignore"):
+        factor = np.where(r_mean > m_mean, 1.0 - m_mean / np.where(r_mean > 0, r_mean, 1.0),
+                          0.0)
+        inv_kg = np.where(grows & (factor > 0), factor / np.where(grows, k_day, 1.0), 0.0)
+    return grows, inv_kg
 
 
 def integrate(drivers: Drivers, rules: HarvestRules, operation: Operation, *,
@@ -333,7 +398,9 @@ def integrate(drivers: Drivers, rules: HarvestRules, operation: Operation, *,
     status = np.full(n, STATUS_NOT_STARTED, dtype=np.int8)
     restart_on = np.full(n, -1, dtype=np.int64)
     since = np.zeros(n, dtype=np.int64)
-    totals = {k: np.zeros(n) for k in ("inoculated", "grown", "respired", "removed", "lost")}
+    age = np.zeros(n, dtype=np.int64)  # days since inoculation
+    totals = {k: np.zeros(n) for k in ("inoculated", "grown", "respired", "removed",
+                                       "salvaged", "lost")}
 
     out = Daily(
         density=np.zeros((n, n_days)), removed=np.zeros((n, n_days)),
@@ -342,12 +409,15 @@ def integrate(drivers: Drivers, rules: HarvestRules, operation: Operation, *,
         hazard=np.zeros((n, n_days), dtype=np.float32),
         status=np.zeros((n, n_days), dtype=np.int8), ledger=totals,
         sampled=None if op.sample_hour is None else np.zeros((n, n_days)),
+        at_floor=np.zeros((n, n_days), dtype=bool),
+        salvaged=np.zeros((n, n_days)), cause=np.zeros((n, n_days), dtype=np.int8),
         grown=np.zeros((n, n_days)), respired=np.zeros((n, n_days)),
     )
     if crash is not None:
-        smooth = crash.smoothed(drivers.capacity)
-        k_smooth = _member_view(smooth, set_of_member)
-        k_fall = _member_view(crash.drop_index(smooth), set_of_member)
+        stress = crash_stress(crash, drivers)
+        temp_of = _member_view(stress.temp_mean_c, set_of_member)
+        heat_of = _member_view(stress.heat_hours, set_of_member)
+        cold_of = _member_view(stress.cold_shock_k, set_of_member)
         draws = crash.streams(seed, np.arange(n) if stream_of_member is None
                               else stream_of_member)
     h6 = STEP_D / 6.0
@@ -363,6 +433,7 @@ def integrate(drivers: Drivers, rules: HarvestRules, operation: Operation, *,
             totals["inoculated"] += np.where(start_now, op.inoculum_g_m3, 0.0)
             status = np.where(start_now, STATUS_GROWING, status).astype(np.int8)
             since = np.where(start_now, 0, since)
+            age = np.where(start_now, 0, age)
         rate_sum[:] = 0.0
         for hod in range(HOURS_PER_DAY):
             hour = day * HOURS_PER_DAY + hod
@@ -370,7 +441,10 @@ def integrate(drivers: Drivers, rules: HarvestRules, operation: Operation, *,
                 frac, scheduled = removal_fraction(
                     rules, day, x, since, min_density_g_m3=op.min_density_g_m3,
                     max_fraction=op.max_fraction)
-                frac = np.where(status == STATUS_GROWING, frac, 0.0)
+                frac, at_floor = cut_back_to_floor(frac, x, op.floor_g_m3)
+                growing = status == STATUS_GROWING
+                frac = np.where(growing, frac, 0.0)
+                out.at_floor[:, day] = at_floor & growing
                 taken = frac * x
                 x = x - taken
                 totals["removed"] += taken
@@ -402,8 +476,10 @@ def integrate(drivers: Drivers, rules: HarvestRules, operation: Operation, *,
             resp = (h6 * m) * (x + 2.0 * (x2 + x3) + x4)
             rate_sum += g1 - m
             x = x + grown - resp
-            totals["grown"] += grown
-            totals["respired"] += resp
+            # A negative gross step (logistic die-back above capacity) is a loss: book it
+            # with respiration so that "grown" stays gross production.
+            totals["grown"] += np.maximum(grown, 0.0)
+            totals["respired"] += resp + np.maximum(-grown, 0.0)
         out.growth_rate[:, day] = np.where(status == STATUS_GROWING,
                                            rate_sum / HOURS_PER_DAY, 0.0)
         # daily terms from the running ledger totals: no per-hour cost
@@ -412,21 +488,26 @@ def integrate(drivers: Drivers, rules: HarvestRules, operation: Operation, *,
         grown_before, respired_before = totals["grown"].copy(), totals["respired"].copy()
         since += 1
         if crash is not None:
-            hazard = crash.hazard(x, k_smooth(day), k_fall(day))
-            hazard = np.where(status == STATUS_GROWING, hazard, 0.0)
-            out.hazard[:, day] = hazard
-            hit = crash.draw(draws, day, hazard) & (status == STATUS_GROWING)
+            growing = status == STATUS_GROWING
+            loss = net_loss_today(out.growth_rate, day, age, crash.window_days)
+            parts = crash.cause_hazards(temp_of(day), heat_of(day), cold_of(day), loss)
+            parts = np.where(growing, parts, 0.0)
+            out.hazard[:, day] = parts.sum(axis=0)
+            hit, cause = crash.draw(draws, day, parts)
+            hit &= growing
             if hit.any():
                 lost = np.where(hit, x * crash.loss_fraction, 0.0)
                 salvage = np.where(hit, x - lost, 0.0)
                 totals["lost"] += lost
-                totals["removed"] += salvage
+                totals["salvaged"] += salvage
                 out.lost[:, day] = lost
-                out.removed[:, day] += salvage
+                out.salvaged[:, day] = salvage
                 out.crashed[:, day] = hit
+                out.cause[:, day] = np.where(hit, cause, 0)
                 x = np.where(hit, 0.0, x)
                 status = np.where(hit, STATUS_RESTARTING, status).astype(np.int8)
                 restart_on = np.where(hit, day + 1 + op.restart_days, restart_on)
+        age += 1
         out.density[:, day] = x
         out.status[:, day] = status
         if progress is not None:
@@ -438,11 +519,27 @@ def integrate(drivers: Drivers, rules: HarvestRules, operation: Operation, *,
     return out
 
 
+def crash_stress(crash, drivers: Drivers):
+    """Daily weather stress of every driver set for the crash hazard
+    (:meth:`pondsim.operations.crash.CrashModel.weather_stress`). Without water
+    temperature in the drivers: the background's reference temperature, no heat, no
+    cold shock."""
+    if drivers.water_temperature is None:
+        shape = (drivers.n_sets, drivers.n_days)
+        return WeatherStress(np.full(shape, float(crash.background_t_ref_c)),
+                             np.zeros(shape), np.zeros(shape))
+    t_max = (np.full(drivers.n_sets, np.inf) if drivers.t_max_c is None
+             else np.asarray(drivers.t_max_c, dtype=float))
+    return crash.weather_stress(drivers.water_temperature, t_max)
+
+
 def check_closure(ledger: dict, rtol: float = 1e-9) -> None:
-    """Raise :class:`LedgerError` unless inoculated + grown − respired − removed − lost
-    equals the final stock for every member (relative to the gross flow)."""
+    """Raise :class:`LedgerError` unless inoculated + grown − respired − removed −
+    salvaged − lost equals the final stock for every member (relative to the gross
+    flow)."""
     balance = (ledger["inoculated"] + ledger["grown"] - ledger["respired"]
-               - ledger["removed"] - ledger["lost"] - ledger["final"])
+               - ledger["removed"] - ledger.get("salvaged", 0.0) - ledger["lost"]
+               - ledger["final"])
     scale = ledger["inoculated"] + np.abs(ledger["grown"]) + ledger["respired"] + 1e-12
     worst = float(np.max(np.abs(balance) / scale)) if balance.size else 0.0
     if not math.isfinite(worst) or worst > rtol:

@@ -17,8 +17,11 @@ Rule types (codes in :data:`RULE_CODES`):
 ``fixed_interval``
     Every ``every_days`` days harvest down to ``residual_g_m3`` (or remove ``fraction``).
 
-Operating limits apply to all rules: nothing is harvested below a minimum density, and
-the removed volume cannot exceed the daily harvest capacity of a pond.
+Operating limits apply to all rules: nothing is harvested below a minimum density, the
+removed volume cannot exceed the daily harvest capacity of a pond, and no harvest leaves
+the culture below its viable-density floor (:func:`cut_back_to_floor`). A culture held at
+or below the floor for more than a set number of days in a row is *washed out*
+(:func:`days_at_floor_in_a_row`): its rule dilutes faster than it grows.
 """
 
 from __future__ import annotations
@@ -176,3 +179,72 @@ def removal_fraction(rules: HarvestRules, day: int, density_g_m3, days_since_har
     scheduled = due & ((code == RULE_CODES["fixed_fraction"])
                        | (code == RULE_CODES["fixed_interval"]))
     return frac, scheduled
+
+
+def floor_of(scenario) -> float:
+    """The scenario's viable-density floor [g m-3]: ``harvest.floor_g_m3``, by default
+    the inoculation density (a :class:`pondsim.scenario.Scenario`)."""
+    floor = scenario.harvest.floor_g_m3
+    return float(scenario.inoculation.density_g_m3 if floor is None else floor)
+
+
+def cut_back_to_floor(fraction, density_g_m3, floor_g_m3: float):
+    """Cut a harvest back so that it leaves at least the viable floor in the pond.
+
+    Parameters
+    ----------
+    fraction : ndarray, shape (n,) [-]
+        Share of the culture volume the rule asks to remove.
+    density_g_m3 : ndarray, shape (n,) [g m-3]
+        Density at the harvest hour, before the harvest.
+    floor_g_m3 : float [g m-3]
+        Viable-density floor (0: no floor).
+
+    Returns
+    -------
+    fraction : ndarray, shape (n,) [-]
+        ``min(fraction, max(0, 1 - floor / X))``: the culture left, (1 - f)·X, is at least
+        the floor (or nothing is taken where X is already below it).
+    at_floor : ndarray of bool, shape (n,)
+        The culture is at its floor: below it at the harvest hour, or its harvest was cut
+        back to it (the rule asked to dilute below the floor).
+
+    Notes
+    -----
+    Dilution by a share f of the volume leaves (1 - f)·X; keeping it at or above the floor
+    F needs f <= 1 - F/X. A rule whose share keeps exceeding that bound day after day
+    dilutes faster than the culture grows (washout in chemostat terms): the floor holds
+    the culture, but only by overriding the rule.
+    """
+    x = np.asarray(density_g_m3, dtype=float)
+    frac = np.asarray(fraction, dtype=float)
+    if floor_g_m3 <= 0.0:
+        return frac, np.zeros(x.shape, dtype=bool)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        allowed = np.where(x > floor_g_m3, 1.0 - floor_g_m3 / x, 0.0)
+    at_floor = (x < floor_g_m3 * (1.0 - 1e-9)) | (frac > allowed + 1e-12)
+    return np.minimum(frac, allowed), at_floor
+
+
+def days_at_floor_in_a_row(at_floor) -> np.ndarray:
+    """Length of the run of consecutive at-floor days ending on each day [d].
+
+    Parameters
+    ----------
+    at_floor : ndarray of bool, shape (..., n_days)
+
+    Returns
+    -------
+    ndarray of int, same shape: 0 where the day is not at the floor, else the number of
+    consecutive at-floor days up to and including it.
+    """
+    b = np.asarray(at_floor, dtype=bool)
+    day = np.arange(b.shape[-1])
+    last_free = np.maximum.accumulate(np.where(b, -1, day), axis=-1)
+    return np.where(b, day - last_free, 0)
+
+
+def washed_out(at_floor, washout_days: int) -> np.ndarray:
+    """Days on which a culture has been at its floor for more than *washout_days* days in
+    a row (bool, same shape as *at_floor*)."""
+    return days_at_floor_in_a_row(at_floor) > washout_days

@@ -15,8 +15,9 @@ from pondsim.errors import InputError
 from pondsim.operations.crash import CrashModel
 from pondsim.operations.dataset import build_dataset
 from pondsim.operations.engine import HOURS_PER_DAY, Drivers, Operation, integrate
-from pondsim.operations.harvest import build_rules
+from pondsim.operations.harvest import build_rules, floor_of
 from pondsim.pond import capacity, kinetics, light, thermal
+from pondsim.pond.stress import stress_flags
 from pondsim.scenario import Scenario
 
 
@@ -50,6 +51,37 @@ def apply_site_check(forcing: pd.DataFrame, meta: dict, scenario: Scenario) -> N
     record_site_check(forcing, meta, {"latitude": site.latitude, "longitude": site.longitude,
                                       "utc_offset_h": site.utc_offset_h},
                       strict=scenario.weather.site_check == "strict", path=scenario.path)
+
+
+def load_forcing_for_year(scenario: Scenario, year: int, *, map_year: bool = False,
+                          what: str = "the observations"):
+    """Forcing of the scenario's weather for a calendar *year* of dated records (a pilot
+    or a pond log): ``(table, meta, notes)``.
+
+    A file of several real years must hold *year*. A typical-year file (TMY, or a file
+    marked typical) is placed into *year*, with a note. A file of ONE real year of
+    another calendar year would silently stand in for *year*: that raises
+    :class:`InputError` unless ``map_year`` is True, when it is used with a note that
+    says so.
+    """
+    year = int(year)
+    forcing, meta = load_forcing(scenario.replace(year=year))
+    notes = [str(n) for n in meta.get("notes", [])]
+    remapped = [n for n in notes if n.startswith("the file's one whole year")]
+    if remapped:
+        own = remapped[0].split("whole year ", 1)[1].split(" ", 1)[0]
+        if not map_year:
+            raise InputError(
+                f"{what} are dated {year}, but the weather file holds the real year {own} "
+                f"only: its weather would stand in for {year}'s days. Give weather that "
+                f"covers {year}, or accept the stand-in explicitly (--map-weather-year)",
+                path=scenario.weather.path, field="weather.path")
+        notes.append(f"weather of {own} used for {what} dated {year} (--map-weather-year): "
+                     "day-to-day weather of the record is not the site's actual weather")
+    elif meta.get("typical_year"):
+        notes.append(f"typical-year weather placed into {year} for {what}: the record's "
+                     "actual weather is not known to the fit")
+    return forcing, meta, notes
 
 
 def _given_forcing(forcing, scenario: Scenario) -> tuple[pd.DataFrame, dict]:
@@ -87,6 +119,10 @@ def _light_and_water(forcing: pd.DataFrame, scenario: Scenario) -> pd.DataFrame:
                                       wind_height_m=scenario.weather.wind_height_m,
                                       upper_limit_c=scenario.strain.t_max_c)
     out = water.copy()
+    st = scenario.strain
+    for name, flag in stress_flags(water["water_temperature"], t_min_c=st.t_min_c,
+                                   t_opt_c=st.t_opt_c, t_max_c=st.t_max_c).items():
+        out[name] = flag.astype(float)
     out["par"] = np.asarray(par, dtype=float)
     out["ghi"] = forcing["ghi"].to_numpy(dtype=float)
     ppj = scenario.light.photons_per_joule_umol
@@ -148,9 +184,11 @@ def build_drivers(hourly_sets, scenario: Scenario, draws: dict | None = None) ->
         Hourly light and water tables (:func:`hourly_light_and_water`), one per weather
         year, all of the same length.
     scenario : Scenario
-    draws : dict of str -> ndarray (n_draws,), optional
+    draws : dict of str -> ndarray (n_draws,) or (n_years, n_draws), optional
         Strain parameters (names in :data:`DRAWABLE`) that vary between draws; the others
-        keep the scenario's value.
+        keep the scenario's value. One-dimensional draws are crossed with every weather
+        year; two-dimensional ones are nested (row ``y`` holds weather year ``y``'s own
+        draws).
 
     Returns
     -------
@@ -165,15 +203,19 @@ def build_drivers(hourly_sets, scenario: Scenario, draws: dict | None = None) ->
     if unknown:
         raise InputError(f"parameters {unknown} cannot vary; allowed: {', '.join(DRAWABLE)}",
                          field="uncertainty")
-    n_draws = len(next(iter(draws.values()))) if draws else 1
+    n_draws = next(iter(draws.values())).shape[-1] if draws else 1
     n_years = len(hourly_sets)
+    if any(v.ndim == 2 and v.shape != (n_years, n_draws) for v in draws.values()):
+        raise InputError(f"nested draws must have shape ({n_years}, {n_draws})",
+                         field="uncertainty")
     year_of_set = np.repeat(np.arange(n_years), n_draws)
     tw = np.stack([h["water_temperature"].to_numpy(float) for h in hourly_sets])[year_of_set]
     par = np.stack([h["par"].to_numpy(float) for h in hourly_sets])[year_of_set]
 
     def param(name):
         if name in draws:
-            return np.tile(draws[name], n_years)
+            v = draws[name]
+            return v.ravel() if v.ndim == 2 else np.tile(v, n_years)
         return np.full(n_years * n_draws, float(getattr(s, name)))
 
     p = {name: param(name) for name in DRAWABLE}
@@ -211,7 +253,7 @@ def build_drivers(hourly_sets, scenario: Scenario, draws: dict | None = None) ->
         mu_max=p["mu_max_per_d"], light_param=p["light_param_umol_m2_s"],
         k_biomass=p["k_biomass_m2_g"], k_background=p["k_background_per_m"],
         light_model=s.light_model, growth_form=s.growth_form,
-        depth_m=scenario.pond.depth_m)
+        depth_m=scenario.pond.depth_m, water_temperature=tw, t_max_c=p["t_max_c"])
 
 
 def operation_of(scenario: Scenario) -> Operation:
@@ -223,12 +265,13 @@ def operation_of(scenario: Scenario) -> Operation:
     return Operation(start_day=start, inoculum_g_m3=ino.density_g_m3,
                      restart_days=ino.restart_days, harvest_hour=h.hour,
                      recovery_efficiency=h.recovery_efficiency, max_fraction=max_fraction,
-                     min_density_g_m3=h.min_density_g_m3)
+                     min_density_g_m3=h.min_density_g_m3, floor_g_m3=floor_of(scenario))
+
 
 
 def simulate(scenario: Scenario, members: int | None = None, seed: int | None = None,
              *, progress: bool | None = None, forcing=None, weather_years=None,
-             draws: dict | None = None) -> xr.Dataset:
+             draws: dict | None = None, weather_basis: str | None = None) -> xr.Dataset:
     """Simulate a year of the scenario for every policy and member.
 
     Parameters
@@ -251,6 +294,10 @@ def simulate(scenario: Scenario, members: int | None = None, seed: int | None = 
         :mod:`pondsim.forcing.years`); each becomes a weather year of the ensemble.
     draws : dict of str -> ndarray, optional
         Strain parameter draws (see :func:`build_drivers`).
+    weather_basis : str, optional
+        Plain words for the weather years (e.g. "20 synthetic years resampled from ..."),
+        stored in the Dataset and printed beside crash figures (default: the scenario's
+        weather year, or the number of weather years).
 
     Returns
     -------
@@ -287,7 +334,8 @@ def simulate(scenario: Scenario, members: int | None = None, seed: int | None = 
             bar.close()
     n_draws = drivers.n_sets // len(hourly_sets)
     return build_dataset(daily, drivers, hourly_sets, scenario, meta, policy_names=names,
-                         members=per_policy, sets=(len(hourly_sets), n_draws, reps))
+                         members=per_policy, sets=(len(hourly_sets), n_draws, reps),
+                         weather_basis=weather_basis)
 
 
 #: Peak bytes per series-day of a run (one policy × member × day): the engine's daily
@@ -341,10 +389,13 @@ def crash_model_of(scenario: Scenario) -> CrashModel | None:
     c = scenario.crash
     if c is None or not c.enabled:
         return None
-    return CrashModel(base_hazard_per_d=c.base_hazard_per_d,
-                      stress_hazard_per_d=c.stress_hazard_per_d,
-                      overshoot_onset=c.overshoot_onset, window_days=c.window_days,
-                      drop_scale=c.drop_scale, loss_fraction=c.loss_fraction)
+    return CrashModel(background_per_d=c.background_per_d,
+                      background_t_ref_c=c.background_t_ref_c,
+                      background_q10=c.background_q10,
+                      starvation_hazard_per_d=c.starvation_hazard_per_d,
+                      window_days=c.window_days, heat_hazard_per_d_h=c.heat_hazard_per_d_h,
+                      cold_hazard_per_d_k=c.cold_hazard_per_d_k, cold_onset_k=c.cold_onset_k,
+                      loss_fraction=c.loss_fraction, salvage_sellable=c.salvage_sellable)
 
 
 def _progress_bar(show: bool, n_days: int, n_members: int):

@@ -26,6 +26,7 @@ __all__ = [
     "daily_carrying_capacity",
     "daily_net_growth_rate",
     "k_drop_index",
+    "trailing_mean",
     "monthly_k_table",
 ]
 
@@ -443,6 +444,17 @@ def _polish(bal, lo, hi, g_lo, g_hi, rtol):
         active = active[~done]
     out[active] = x[active]
     return out
+
+
+def trailing_mean(k_daily, window_days=3):
+    """Trailing ``window_days`` mean along the last axis (fewer days at the start) [unit of
+    the input]; used to draw a smoothed K beside the density."""
+    k = np.asarray(k_daily, dtype=float)
+    w = int(window_days)
+    c = np.cumsum(np.concatenate([np.zeros(k.shape[:-1] + (1,)), k], axis=-1), axis=-1)
+    idx = np.arange(k.shape[-1])
+    start = np.maximum(idx + 1 - w, 0)
+    return (c[..., idx + 1] - c[..., start]) / (idx + 1 - start)
 
 
 def k_drop_index(k_daily, window_days=3, *, k_floor=1.0):

@@ -6,9 +6,11 @@ evaporates). Its heat balance follows the structure of Béchet et al. (2011):
     ρ c_p d dT/dt = q_shortwave + q_longwave_in + q_longwave_out + q_evaporation
                     + q_convection + q_ground + q_makeup + q_input
 
-with every term signed as a gain to the water [W m-2]. Latent and sensible exchange use
-the open-water Penman wind function of Shuttleworth (1993); vapour pressures, the
-psychrometric constant and the 2 m wind follow FAO-56 (Allen et al. 1998).
+with every term signed as a gain to the water [W m-2]. Latent and sensible exchange use a
+surface transfer model chosen by name (:mod:`pondsim.pond.transfer`; default the
+cooling-pond formula of Ryan, Harleman & Stolzenbach 1974) with the sensible heat by the
+Bowen ratio; the sky longwave comes from :mod:`pondsim.pond.longwave`; vapour pressures,
+the psychrometric constant and the 2 m wind follow FAO-56 (Allen et al. 1998).
 
 References
 ----------
@@ -25,44 +27,41 @@ Hydrology*, ch. 4. McGraw-Hill.
 
 from __future__ import annotations
 
-import math
-
 import numpy as np
 import pandas as pd
 
 from pondsim.errors import InputError
 from pondsim.pond.light import WATER_REFRACTIVE_INDEX, transmitted_shortwave
-
-#: Stefan-Boltzmann constant [W m-2 K-4] (CODATA 2018).
-STEFAN_BOLTZMANN = 5.670374419e-8
-#: Density of the culture taken as that of water at 4-30 °C, within 0.5 % [kg m-3].
-WATER_DENSITY = 1000.0
-#: Specific heat of water at 20 °C [J kg-1 K-1].
-WATER_HEAT_CAPACITY = 4186.0
-#: Latent heat of fusion of ice at 0 °C [J kg-1].
-LATENT_HEAT_FUSION = 334.0e3
-#: Density of ice [kg m-3] and its thermal conductivity near 0 °C [W m-1 K-1] (from
-#: memory; the usual values in Stefan-law ice growth).
-ICE_DENSITY = 917.0
-ICE_CONDUCTIVITY = 2.2
-#: Longwave emissivity of a water surface [-] (Béchet et al. 2011 use 0.97).
-WATER_EMISSIVITY = 0.97
-#: Default heat-transfer coefficient water -> deep ground [W m-2 K-1]: soil conductivity
-#: about 1 W m-1 K-1 over 0.5-1 m to the depth of constant temperature gives 1-2
-#: (common practice; an assumption, set it from site data where known).
-GROUND_CONDUCTANCE = 1.5
-#: Plausible range of a measured downwelling longwave value [W m-2]; outside it the
-#: sky-emissivity formula is used for that hour.
-IR_PLAUSIBLE_W_M2 = (50.0, 600.0)
-#: Minimum clear-sky GHI for a usable clearness ratio in the cloud correction [W m-2].
-CLOUD_RATIO_MIN_GHI_CLEAR = 50.0
+from pondsim.pond.longwave import STEFAN_BOLTZMANN, sky_longwave  # noqa: F401
+from pondsim.pond.thermal_step import (  # noqa: F401
+    GROUND_CONDUCTANCE,
+    ICE_CONDUCTIVITY,
+    ICE_DENSITY,
+    LATENT_HEAT_FUSION,
+    WATER_DENSITY,
+    WATER_EMISSIVITY,
+    WATER_HEAT_CAPACITY,
+    integrate_heat_balance,
+)
+from pondsim.pond.transfer import (  # noqa: F401
+    HARBECK_AREA_EXPONENT,
+    HARBECK_PREFACTOR,
+    RYAN_HARLEMAN_FREE,
+    RYAN_HARLEMAN_WIND,
+    latent_heat_vaporisation,
+    surface_transfer,
+    virtual_temperature_k,
+    wind_at_2m,
+    wind_function,
+)
 
 _KELVIN = 273.15
-_MJ_PER_DAY_TO_W = 1e6 / 86400.0
+#: Surface transfer model used when the pond names none (see
+#: :func:`pondsim.pond.transfer.surface_transfer` for why).
+DEFAULT_TRANSFER = "ryan_harleman"
 _REQUIRED = ("ghi", "dhi", "temp_air", "wind_speed", "relative_humidity", "pressure",
              "solar_zenith")
 _DEPTH_RANGE_M = (0.05, 1.0)
-_MIN_COUPLING = 1e-3  # W m-2 K-1, guards the exponential weights against a = 0
 
 
 # FAO-56 vapour-pressure and pressure relations live in pondsim.forcing.psychrometry (shared with
@@ -74,195 +73,6 @@ from pondsim.forcing.psychrometry import (  # noqa: E402, F401
     slope_saturation_vapour_pressure,
 )
 
-
-def wind_at_2m(uz, z_m):
-    """Wind speed at 2 m from a measurement at height z, FAO-56 eq. 47.
-
-    Parameters
-    ----------
-    uz : float, array-like or Series [m s-1]
-        Wind speed measured at height *z_m*.
-    z_m : float [m]
-        Measurement height, 0.5-100 m.
-
-    Returns
-    -------
-    same type as *uz* [m s-1]
-
-    Notes
-    -----
-    .. math:: u_2 = u_z \\frac{4.87}{\\ln(67.8 z - 5.42)}
-
-    a logarithmic profile over short grass; over open water (smoother) it slightly
-    underestimates u_2, which is how the Penman open-water wind function is usually fed.
-
-    References
-    ----------
-    Allen et al. (1998) FAO-56, eq. 47.
-    """
-    z = float(z_m)
-    if not 0.5 <= z <= 100.0:
-        raise InputError(f"wind measurement height must be in 0.5-100 m, got {z_m!r}",
-                         field="wind_height_m")
-    return uz * (4.87 / math.log(67.8 * z - 5.42))
-
-
-def latent_heat_vaporisation(t_c):
-    """Latent heat of vaporisation of water.
-
-    Parameters
-    ----------
-    t_c : float, array-like or Series [°C]
-
-    Returns
-    -------
-    same type [MJ kg-1]
-
-    Notes
-    -----
-    λ = 2.501 − 0.002361 T (Harrison 1963, as given in FAO-56 Annex 3, eq. 3-1). It is
-    used here only to turn the latent heat flux into an evaporated mass; FAO-56's
-    constant 2.45 MJ kg-1 corresponds to 20 °C.
-    """
-    return 2.501 - 0.002361 * t_c
-
-
-def wind_function(u2):
-    """Open-water Penman wind function of Shuttleworth (1993), as an energy flux.
-
-    Parameters
-    ----------
-    u2 : float, array-like or Series [m s-1]
-        Wind speed at 2 m.
-
-    Returns
-    -------
-    same type [W m-2 kPa-1]
-        Latent heat flux per kPa of vapour-pressure deficit at the surface.
-
-    Notes
-    -----
-    Shuttleworth (1993, eq. 4.2.31 in the Handbook of Hydrology) writes the aerodynamic
-    evaporation from open water as
-
-    .. math:: λE = 6.43\\,(1 + 0.536\\,u_2)\\,(e_s - e_a)\\quad[\\mathrm{MJ\\,m^{-2}\\,d^{-1}}]
-
-    which is returned here converted to W m-2 kPa-1 (× 10⁶/86 400).
-    """
-    return 6.43 * _MJ_PER_DAY_TO_W * (1.0 + 0.536 * u2)
-
-
-# ---------------------------------------------------------------------------------------
-# Sky longwave
-# ---------------------------------------------------------------------------------------
-
-def clear_sky_emissivity_brutsaert(vapour_pressure_kpa, temp_air_c):
-    """Clear-sky atmospheric emissivity of Brutsaert (1975).
-
-    Parameters
-    ----------
-    vapour_pressure_kpa : float, array-like or Series [kPa]
-        Actual vapour pressure near the surface.
-    temp_air_c : float, array-like or Series [°C]
-        Screen-level air temperature.
-
-    Returns
-    -------
-    same type [-]
-
-    Notes
-    -----
-    .. math:: ε_{clear} = 1.24\\,(e/T)^{1/7},\\quad e\\ [\\mathrm{hPa}],\\ T\\ [\\mathrm{K}]
-
-    References
-    ----------
-    Brutsaert, W. (1975) On a derivable formula for long-wave radiation from clear skies.
-    *Water Resour. Res.* 11:742-744. doi:10.1029/WR011i005p00742
-    """
-    e_hpa = np.maximum(10.0 * vapour_pressure_kpa, 0.0)
-    return 1.24 * (e_hpa / (temp_air_c + _KELVIN)) ** (1.0 / 7.0)
-
-
-def cloud_fraction_crawford_duchon(ghi, ghi_clear):
-    """Cloud fraction from the clearness ratio, carried through the night.
-
-    Parameters
-    ----------
-    ghi : pandas.Series [W m-2]
-        Measured global horizontal irradiance, time-ordered.
-    ghi_clear : pandas.Series [W m-2]
-        Clear-sky GHI for the same hours.
-
-    Returns
-    -------
-    pandas.Series [-]
-        clf = 1 − s, s = ghi/ghi_clear clipped to 0-1, in hours with
-        ghi_clear ≥ 50 W m-2. Other hours (night, low sun) carry the last daytime value
-        forward; hours before the first daytime value take that first value; with no
-        daytime hour at all the sky is taken as clear (0).
-
-    References
-    ----------
-    Crawford, T. M. & Duchon, C. E. (1999) An improved parameterization for estimating
-    effective atmospheric emissivity for use in calculating daytime downwelling longwave
-    radiation. *J. Appl. Meteorol.* 38:474-480.
-    doi:10.1175/1520-0450(1999)038<0474:AIPFEE>2.0.CO;2
-    """
-    g = ghi.to_numpy(dtype=float)
-    gc = ghi_clear.to_numpy(dtype=float)
-    day = np.isfinite(g) & np.isfinite(gc) & (gc >= CLOUD_RATIO_MIN_GHI_CLEAR)
-    s = np.full(g.shape, np.nan)
-    s[day] = np.clip(g[day] / gc[day], 0.0, 1.0)
-    clf = pd.Series(1.0 - s, index=ghi.index).ffill().bfill().fillna(0.0)
-    clf.name = "cloud_fraction"
-    return clf
-
-
-def sky_longwave(forcing):
-    """Downwelling longwave irradiance on the pond surface.
-
-    Parameters
-    ----------
-    forcing : pandas.DataFrame
-        Needs ``temp_air`` [°C] and ``relative_humidity`` [%]; uses ``ir_horizontal``
-        [W m-2] where present, finite and within 50-600 W m-2; for the other hours needs
-        ``ghi`` and ``ghi_clear`` [W m-2].
-
-    Returns
-    -------
-    pandas.Series [W m-2]
-        ``longwave_down``.
-
-    Notes
-    -----
-    Where no usable measurement exists, L↓ = ε σ T_a⁴ with the all-sky emissivity of
-    Crawford & Duchon (1999, eq. 4), ε = clf + (1 − clf) ε_clear, and ε_clear from
-    Brutsaert (1975) (see :func:`clear_sky_emissivity_brutsaert` and
-    :func:`cloud_fraction_crawford_duchon`).
-    """
-    t_air = forcing["temp_air"].to_numpy(dtype=float)
-    ea = forcing["relative_humidity"].to_numpy(dtype=float) / 100.0 \
-        * saturation_vapour_pressure(t_air)
-    out = np.full(t_air.shape, np.nan)
-    if "ir_horizontal" in forcing.columns:
-        ir = forcing["ir_horizontal"].to_numpy(dtype=float)
-        lo, hi = IR_PLAUSIBLE_W_M2
-        good = np.isfinite(ir) & (ir >= lo) & (ir <= hi)
-        out[good] = ir[good]
-    need = ~np.isfinite(out)
-    if need.any():
-        if "ghi_clear" not in forcing.columns:
-            raise InputError("forcing lacks column ghi_clear, needed for the sky longwave "
-                             "where ir_horizontal is absent or implausible",
-                             field="ghi_clear")
-        clf = cloud_fraction_crawford_duchon(forcing["ghi"], forcing["ghi_clear"])
-        eps = clf.to_numpy() + (1.0 - clf.to_numpy()) \
-            * clear_sky_emissivity_brutsaert(ea, t_air)
-        formula = eps * STEFAN_BOLTZMANN * (t_air + _KELVIN) ** 4
-        out[need] = formula[need]
-    return pd.Series(out, index=forcing.index, name="longwave_down")
-
-
 # ---------------------------------------------------------------------------------------
 # Flux terms
 # ---------------------------------------------------------------------------------------
@@ -271,7 +81,8 @@ def heat_flux_terms(t_water_c, *, q_shortwave, q_longwave_in, temp_air_c,
                     vapour_pressure_kpa, wind_function_w_m2_kpa, psychrometric_kpa_c,
                     ground_temperature_c, ground_conductance_w_m2_k, makeup_temperature_c,
                     rain_kg_m2_s, heat_input_w_m2=0.0, water_emissivity=WATER_EMISSIVITY,
-                    t_surface_c=None):
+                    free_convection_w_m2_kpa_k13=0.0, virtual_temperature_air_k=None,
+                    pressure_kpa=101.3, t_surface_c=None):
     """Heat flux terms of the pond surface for a given water temperature.
 
     Parameters
@@ -286,7 +97,8 @@ def heat_flux_terms(t_water_c, *, q_shortwave, q_longwave_in, temp_air_c,
     vapour_pressure_kpa : [kPa]
         Actual vapour pressure of the air.
     wind_function_w_m2_kpa : [W m-2 kPa-1]
-        From :func:`wind_function`.
+        Forced (wind-driven) transfer, from
+        :func:`pondsim.pond.transfer.surface_transfer`.
     psychrometric_kpa_c : [kPa °C-1]
     ground_temperature_c : [°C]
     ground_conductance_w_m2_k : [W m-2 K-1]
@@ -295,6 +107,13 @@ def heat_flux_terms(t_water_c, *, q_shortwave, q_longwave_in, temp_air_c,
         Rain rate (1 kg m-2 = 1 mm).
     heat_input_w_m2 : [W m-2], default 0
     water_emissivity : [-], default 0.97
+    free_convection_w_m2_kpa_k13 : [W m-2 kPa-1 K-1/3], default 0
+        Free-convection coefficient (Ryan et al. 1974); 0 for none.
+    virtual_temperature_air_k : [K], optional
+        Virtual temperature of the air; needed when the free-convection coefficient
+        is not 0.
+    pressure_kpa : [kPa], default 101.3
+        Air pressure, for the virtual temperature of saturated air at the surface.
     t_surface_c : float or array-like, optional [°C]
         Temperature of the exchanging surface when it differs from the water (the
         surface of an ice cover); default *t_water_c*.
@@ -312,8 +131,10 @@ def heat_flux_terms(t_water_c, *, q_shortwave, q_longwave_in, temp_air_c,
     :func:`latent_heat_vaporisation`:
 
     - q_longwave_out = −ε_w σ (T_w + 273.15)⁴
-    - q_evaporation = −f (e_s(T_w) − e_a) (Shuttleworth 1993); E = −q_evaporation/λ,
-      negative (condensation) when the air's vapour pressure exceeds e_s(T_w)
+    - f = f_forced + f_free max(T_v,s − T_v,a, 0)^(1/3), T_v,s the virtual temperature
+      of saturated air at the surface (see :mod:`pondsim.pond.transfer`)
+    - q_evaporation = −f (e_s(T_w) − e_a); E = −q_evaporation/λ, negative
+      (condensation) when the air's vapour pressure exceeds e_s(T_w)
     - q_convection = −f γ (T_w − T_a): the same transfer coefficient scaled by the
       Bowen ratio, free of the 0/0 of the ratio form
     - q_ground = −G (T_w − T_g)
@@ -335,6 +156,14 @@ def heat_flux_terms(t_water_c, *, q_shortwave, q_longwave_in, temp_air_c,
     ts = t if t_surface_c is None else a(t_surface_c, dtype=float)
     es = saturation_vapour_pressure(ts)
     f = np.asarray(wind_function_w_m2_kpa, dtype=float)
+    c_free = np.asarray(free_convection_w_m2_kpa_k13, dtype=float)
+    if np.any(c_free > 0):
+        if virtual_temperature_air_k is None:
+            raise InputError("virtual_temperature_air_k is needed with free convection",
+                             field="virtual_temperature_air_k")
+        tvs = virtual_temperature_k(ts, es, pressure_kpa)
+        f = f + c_free * np.cbrt(np.maximum(tvs - np.asarray(virtual_temperature_air_k,
+                                                             dtype=float), 0.0))
     latent = f * (es - vapour_pressure_kpa)
     evap = latent / (latent_heat_vaporisation(ts) * 1e6)
     makeup = np.maximum(evap - rain_kg_m2_s, 0.0)
@@ -446,7 +275,11 @@ def heat_exchange_inputs(forcing, pond, *, wind_height_m=10.0):
     pond : object
         With ``depth_m`` and optionally ``ground_temperature_c``,
         ``ground_conductance_w_m2_k``, ``makeup_temperature_c``, ``heat_input_w_m2``,
-        ``water_emissivity``, ``refractive_index`` (None or absent → defaults).
+        ``water_emissivity``, ``refractive_index``, ``area_m2`` [m2, one pond],
+        ``surface_transfer`` (model name, default ``"ryan_harleman"``), its coefficients
+        ``harbeck_prefactor``, ``harbeck_area_exponent``, ``ryan_harleman_wind_w_m2_hpa``,
+        ``free_convection_w_m2_hpa_k13``, and ``sky_emissivity`` (None or absent →
+        defaults).
     wind_height_m : float, default 10 [m]
 
     Returns
@@ -460,7 +293,8 @@ def heat_exchange_inputs(forcing, pond, *, wind_height_m=10.0):
     Defaults: ground temperature = mean of ``temp_air`` over the forcing (the deep-soil
     temperature approaches the annual mean air temperature; common practice); makeup
     temperature = ground temperature (water drawn from a well or buried main); missing
-    ``precipitation`` → no rain.
+    ``precipitation`` (or a missing value) → no rain in the balance (the output's
+    ``rain`` column says "no data", NaN).
     """
     _check_inputs(forcing, pond)
     t_air = forcing["temp_air"].to_numpy(dtype=float)
@@ -478,17 +312,31 @@ def heat_exchange_inputs(forcing, pond, *, wind_height_m=10.0):
         rain = forcing["precipitation"].fillna(0.0).to_numpy(dtype=float) / step_s
     else:
         rain = np.zeros(n)
+    p_kpa = forcing["pressure"].to_numpy(dtype=float) / 1000.0
+    forced, free = surface_transfer(
+        str(_pond_value(pond, "surface_transfer", DEFAULT_TRANSFER)), u2,
+        area_m2=float(_pond_value(pond, "area_m2", 1000.0)),
+        harbeck_prefactor=float(_pond_value(pond, "harbeck_prefactor", HARBECK_PREFACTOR)),
+        harbeck_exponent=float(_pond_value(pond, "harbeck_area_exponent",
+                                           HARBECK_AREA_EXPONENT)),
+        ryan_harleman_wind=float(_pond_value(pond, "ryan_harleman_wind_w_m2_hpa",
+                                             RYAN_HARLEMAN_WIND)),
+        free_convection_coefficient=float(_pond_value(
+            pond, "free_convection_w_m2_hpa_k13", RYAN_HARLEMAN_FREE)))
     q_sw = transmitted_shortwave(forcing["ghi"].to_numpy(dtype=float),
                                  forcing["dhi"].to_numpy(dtype=float),
                                  forcing["solar_zenith"].to_numpy(dtype=float), n_ref)
     data = {
         "q_shortwave": q_sw,
-        "q_longwave_in": eps * sky_longwave(forcing).to_numpy(),
+        "q_longwave_in": eps * sky_longwave(
+            forcing, str(_pond_value(pond, "sky_emissivity", "brutsaert"))).to_numpy(),
         "temp_air_c": t_air,
         "vapour_pressure_kpa": ea,
-        "wind_function_w_m2_kpa": wind_function(u2),
-        "psychrometric_kpa_c": psychrometric_constant(
-            forcing["pressure"].to_numpy(dtype=float) / 1000.0),
+        "wind_function_w_m2_kpa": forced,
+        "free_convection_w_m2_kpa_k13": np.full(n, free),
+        "virtual_temperature_air_k": virtual_temperature_k(t_air, ea, p_kpa),
+        "pressure_kpa": p_kpa,
+        "psychrometric_kpa_c": psychrometric_constant(p_kpa),
         "ground_temperature_c": np.full(n, t_ground),
         "ground_conductance_w_m2_k": np.full(
             n, float(_pond_value(pond, "ground_conductance_w_m2_k", GROUND_CONDUCTANCE))),
@@ -498,155 +346,6 @@ def heat_exchange_inputs(forcing, pond, *, wind_height_m=10.0):
         "water_emissivity": np.full(n, eps),
     }
     return pd.DataFrame(data, index=forcing.index)
-
-
-# ---------------------------------------------------------------------------------------
-# Integration
-# ---------------------------------------------------------------------------------------
-
-def _flux(tw, ts, slope, fixed, f, fg, e_a, t_a, g, t_g, t_m, p, eps_sigma, q_in):
-    """Scalar net flux [W m-2] of one step (the loop's copy of :func:`heat_flux_terms`).
-
-    Surface exchange at the surface temperature *ts* (the water's, or that of the ice);
-    floor conduction and mixing at the water temperature *tw*. With *slope* returns
-    (q, dq/dT) — for ts != tw the surface balance and its slope in ts only — else
-    (q, lw, latent, convection, ground, makeup heat, evaporation, makeup mass).
-    """
-    tk = ts + _KELVIN
-    es = 0.6108 * math.exp(17.27 * ts / (ts + 237.3))
-    lam = (2.501 - 0.002361 * ts) * 1e6
-    lat = f * (es - e_a)
-    evap = lat / lam
-    mk = evap - p if evap > p else 0.0
-    lw = eps_sigma * tk * tk * tk * tk
-    conv = fg * (ts - t_a)
-    grd = g * (tw - t_g)
-    cp = WATER_HEAT_CAPACITY
-    mkq = cp * (mk * (t_m - tw) + p * (t_a - tw))
-    q = fixed - lw - lat - conv - grd + mkq
-    if not slope:
-        return q, lw, lat, conv, grd, mkq, evap, mk
-    des = 4098.0 * es / ((ts + 237.3) * (ts + 237.3))
-    d_surface = -4.0 * eps_sigma * tk * tk * tk - f * des - fg
-    if ts != tw:
-        return q + grd - mkq - q_in, d_surface  # surface balance only
-    dmk = f * des / lam if evap > p else 0.0
-    dq = d_surface - g + cp * (dmk * (t_m - tw) - mk - p)
-    return q, dq
-
-
-def _integrate(inp, t_start, ice_start, step_s, heat_capacity, record=True):
-    """Step the pond through *inp* (dict of lists); pure Python floats for speed.
-
-    Each step solves for the step-mean temperature T̄ of the exponential relaxation
-    through the step (see :func:`water_temperature`), then closes energy exactly:
-    T_end = T_start + q(T̄) Δt / C.
-    """
-    expm1 = math.expm1
-    sw, lwin = inp["q_shortwave"], inp["q_longwave_in"]
-    ta, ea = inp["temp_air_c"], inp["vapour_pressure_kpa"]
-    fw, gam = inp["wind_function_w_m2_kpa"], inp["psychrometric_kpa_c"]
-    tg, gg = inp["ground_temperature_c"], inp["ground_conductance_w_m2_k"]
-    tm, rain = inp["makeup_temperature_c"], inp["rain_kg_m2_s"]
-    qin, emis = inp["heat_input_w_m2"], inp["water_emissivity"]
-    sigma = STEFAN_BOLTZMANN
-    ice_volumetric_latent = ICE_DENSITY * LATENT_HEAT_FUSION  # J m-3
-    n = len(sw)
-    if record:
-        out_mean = [0.0] * n
-        out_end = [0.0] * n
-        out_ice = [0.0] * n
-        out_frozen = [False] * n
-        out_terms = [[0.0] * n for _ in range(6)]  # lw_out, evap, conv, ground, makeup, E
-        out_makeup = [0.0] * n
-        out_surface = [0.0] * n
-    t = float(t_start)
-    ice = float(ice_start)
-    dt = float(step_s)
-    c = float(heat_capacity)
-
-    for i in range(n):
-        fixed = sw[i] + lwin[i] + qin[i]
-        f = fw[i]
-        fg = f * gam[i]
-        e_a = ea[i]
-        t_a = ta[i]
-        g = gg[i]
-        t_g = tg[i]
-        t_m = tm[i]
-        p = rain[i]
-        eps_sigma = emis[i] * sigma
-        ice0 = ice
-
-        prm = (fixed, f, fg, e_a, t_a, g, t_g, t_m, p, eps_sigma, qin[i])
-
-        if ice0 > 0.0:
-            # Water held at 0 °C under the ice: energy first freezes or melts ice.
-            tbar = 0.0
-            t_end = 0.0
-            ts = 0.0
-            res = _flux(0.0, 0.0, False, *prm)
-            surface_gain = res[0] + res[4] - res[5] - qin[i]
-            if surface_gain < 0.0:
-                # The ice surface cools below 0 °C until conduction through the ice
-                # supplies its net loss: q_surface(T_s) = k_ice T_s / h.
-                kh = ICE_CONDUCTIVITY / max(ice0 / ice_volumetric_latent, 1e-4)
-                ts = -1e-6
-                for _ in range(50):
-                    q, dq = _flux(0.0, ts, True, *prm)
-                    step = (q - kh * ts) / (dq - kh)
-                    ts -= step
-                    if ts > -1e-9:
-                        ts = -1e-9
-                    if abs(step) < 1e-9:
-                        break
-                res = _flux(0.0, ts, False, *prm)
-            energy = res[0] * dt
-            if energy <= ice0:
-                ice = ice0 - energy
-            else:
-                t_end = (energy - ice0) / c
-                ice = 0.0
-        else:
-            tbar = t
-            for _ in range(30):
-                q, dq = _flux(tbar, tbar, True, *prm)
-                a = -dq if -dq > _MIN_COUPLING else _MIN_COUPLING
-                z = a * dt / c
-                phi = -expm1(-z) / z
-                k = (1.0 - phi) / (a * phi)  # T̄ − T_start = q(T̄) k for linear q
-                step = (tbar - t - q * k) / (1.0 + a * k)
-                tbar -= step
-                if abs(step) < 1e-9:
-                    break
-            if tbar < 0.0:
-                # The step would cool below freezing: hold the mean at 0 °C.
-                tbar = 0.0
-            ts = tbar
-            res = _flux(tbar, tbar, False, *prm)
-            t_end = t + res[0] * dt / c
-            if t_end < 0.0:
-                ice = -t_end * c
-                t_end = 0.0
-        t = t_end
-        if record:
-            out_mean[i] = tbar
-            out_end[i] = t_end
-            out_ice[i] = ice
-            out_frozen[i] = ice0 > 0.0 or ice > 0.0
-            for j in range(6):
-                out_terms[j][i] = res[1 + j]
-            out_makeup[i] = res[7]
-            out_surface[i] = ts
-    if not record:
-        return t, ice
-    return {
-        "water_temperature": out_mean, "water_temperature_end": out_end, "ice": out_ice,
-        "frozen": out_frozen, "lw": out_terms[0], "lat": out_terms[1],
-        "conv": out_terms[2], "grd": out_terms[3], "mkq": out_terms[4],
-        "evap": out_terms[5], "makeup": out_makeup, "surface": out_surface,
-        "t_end": t, "ice_end": ice,
-    }
 
 
 def water_temperature(forcing, pond, *, wind_height_m=10.0, upper_limit_c=None,
@@ -688,7 +387,9 @@ def water_temperature(forcing, pond, *, wind_height_m=10.0, upper_limit_c=None,
         - ``surface_temperature`` [°C]: of the exchanging surface, the water's or, under
           ice, that of the ice surface;
         - ``evaporation`` [mm per step]: negative when vapour condenses on cold water;
-        - ``rain`` [mm per step]; ``makeup`` [mm per step] = max(evaporation − rain, 0);
+        - ``rain`` [mm per step], NaN ("no data") where the forcing has no
+          ``precipitation`` value; ``makeup`` [mm per step] = max(evaporation − rain,
+          0), rain counted as 0 where unknown (the makeup is then an upper bound);
         - ``q_*`` [W m-2, gains positive, step means] — see :func:`heat_flux_terms`;
         - ``ice`` [J m-2]: latent heat store of ice at the end of the step, ≥ 0;
         - ``frozen`` [bool]: ice present during the step;
@@ -714,7 +415,10 @@ def water_temperature(forcing, pond, *, wind_height_m=10.0, upper_limit_c=None,
     solved by Newton's method; then T_1 = T_0 + q(T̄) Δt / C, so the reported flux terms
     (evaluated at T̄) close the energy budget exactly. The scheme is exact for a linear
     flux, tends to the Crank-Nicolson rule for small z and to the quasi-steady
-    temperature for large z, and does not oscillate. Against a 1-minute RK4 reference on
+    temperature for large z, and does not oscillate. A step in which the temperature
+    changes by more than 4 K (shallow ponds in the morning) is split into up to 8 equal
+    sub-steps, since the flux (free convection's cube root, e_s(T)) is then far from
+    linear over it; the step reports the sub-steps' means. Against a 1-minute RK4 reference on
     synthetic diurnal forcing, the step-mean temperature differs by less than 0.1 K at
     depths 0.05-1 m (tests/test_thermal.py).
 
@@ -749,12 +453,16 @@ def water_temperature(forcing, pond, *, wind_height_m=10.0, upper_limit_c=None,
     if spinup_years:
         first_year = {k: v[:steps_per_year] for k, v in columns.items()}
         for _ in range(spinup_years):
-            t0, ice0 = _integrate(first_year, t0, ice0, step_s, heat_capacity,
+            t0, ice0 = integrate_heat_balance(first_year, t0, ice0, step_s, heat_capacity,
                                   record=False)
-    run = _integrate(columns, t0, ice0, step_s, heat_capacity)
+    run = integrate_heat_balance(columns, t0, ice0, step_s, heat_capacity)
 
     step_mm = step_s  # kg m-2 s-1 × s = kg m-2 = mm
-    rain_mm = inputs["rain_kg_m2_s"].to_numpy() * step_mm
+    if "precipitation" in forcing.columns:  # NaN where the file does not know
+        rain_mm = inputs["rain_kg_m2_s"].to_numpy() * step_mm
+        rain_mm[np.isnan(forcing["precipitation"].to_numpy(dtype=float))] = np.nan
+    else:
+        rain_mm = np.full(len(forcing), np.nan)
     t_mean = np.asarray(run["water_temperature"])
     out = pd.DataFrame({
         "water_temperature": t_mean,
@@ -802,7 +510,8 @@ def daily_thermal_summary(df, pond):
     pandas.DataFrame
         Indexed by local midnight, columns ``water_temperature_mean``,
         ``water_temperature_min``, ``water_temperature_max`` [°C, of step means],
-        ``evaporation`` [mm d-1], ``rain`` [mm d-1], ``makeup_m3`` [m3 d-1 for the farm,
+        ``evaporation`` [mm d-1], ``rain`` [mm d-1, over the hours with a known value;
+        NaN for a day without any], ``makeup_m3`` [m3 d-1 for the farm,
         area_m2 × count], ``freezing_hours`` [h], ``hours_above_limit`` [h].
         ``attrs`` holds totals over the record: ``evaporation_mm``, ``rain_mm``,
         ``makeup_m3``, ``freezing_hours``, ``hours_above_limit`` and ``days``.
@@ -816,14 +525,14 @@ def daily_thermal_summary(df, pond):
         "water_temperature_min": temp.min(),
         "water_temperature_max": temp.max(),
         "evaporation": grouped["evaporation"].sum(),
-        "rain": grouped["rain"].sum(),
+        "rain": grouped["rain"].sum(min_count=1),
         "makeup_m3": grouped["makeup"].sum() / 1000.0 * farm_area,
         "freezing_hours": grouped["frozen"].sum().astype(float) * step_h,
         "hours_above_limit": grouped["above_limit"].sum().astype(float) * step_h,
     })
     out.attrs.update({
         "evaporation_mm": float(out["evaporation"].sum()),
-        "rain_mm": float(out["rain"].sum()),
+        "rain_mm": float(out["rain"].sum(min_count=1)),
         "makeup_m3": float(out["makeup_m3"].sum()),
         "freezing_hours": float(out["freezing_hours"].sum()),
         "hours_above_limit": float(out["hours_above_limit"].sum()),

@@ -22,9 +22,12 @@ MAX_SOLAR_EFFICIENCY = 0.046
 def policy_summary(ds: xr.Dataset) -> pd.DataFrame:
     """One row per policy: annual and monthly yield, harvests, density and efficiency.
 
-    Member means. Photosynthetic efficiency is the energy of the harvested biomass
-    (:data:`BIOMASS_ENERGY_KJ_G`) over the incident PAR (converted with the photon
-    conversion used by the light stage) and over total solar (GHI).
+    Member means. ``washed_out_pct``: share of members whose culture was held at its
+    viable floor on more than ``washout_days`` days in a row at least once [%];
+    ``days_at_floor``: mean days at the floor in the year. Photosynthetic efficiency is
+    the energy of the harvested biomass (:data:`BIOMASS_ENERGY_KJ_G`) over the incident
+    PAR (converted with the photon conversion used by the light stage) and over total
+    solar (GHI).
     """
     n_days = ds.sizes["day"]
     harvested = ds["harvested"]  # g m-2 d-1
@@ -52,6 +55,7 @@ def policy_summary(ds: xr.Dataset) -> pd.DataFrame:
             "efficiency_par_pct": 100 * e * 1e3 / par_j if par_j > 0 else np.nan,
             "efficiency_solar_pct": 100 * eff_solar,
             "plausible": bool(not eff_solar > MAX_SOLAR_EFFICIENCY),
+            **_washout_columns(ds, p),
         }
         for m in monthly["month"].values:
             row[f"m{int(m):02d}_g_m2"] = float(monthly.sel(policy=p, month=m))
@@ -59,14 +63,28 @@ def policy_summary(ds: xr.Dataset) -> pd.DataFrame:
     return pd.DataFrame(rows).set_index("policy")
 
 
+def _washout_columns(ds: xr.Dataset, policy) -> dict:
+    """Share of members washed out at least once in the year [%] and mean days at the
+    viable floor [d per year] (NaN for results written before the floor existed)."""
+    if "washed_out" not in ds:
+        return {"washed_out_pct": np.nan, "days_at_floor": np.nan}
+    washed = ds["washed_out"].sel(policy=policy).max("day") > 0
+    return {"washed_out_pct": 100.0 * float(washed.mean()),
+            "days_at_floor": float(ds["at_floor"].sel(policy=policy).sum("day").mean())}
+
+
 def monthly_forcing_table(forcing: pd.DataFrame, par, water: pd.DataFrame,
-                          pond) -> pd.DataFrame:
+                          pond, stress: pd.DataFrame | None = None) -> pd.DataFrame:
     """Monthly weather, light and pond water table (the ``pondsim weather`` output).
 
     Columns: mean daily GHI [kWh m-2 d-1], mean daily PAR entering the culture
     [mol m-2 d-1], air temperature mean, mean daily max, mean daily min [degC], wind
     [m s-1], relative humidity [%], water temperature mean [degC], evaporation
-    [mm d-1], rain [mm per month], makeup water for the farm [m3 per month].
+    [mm d-1], rain [mm per month; NaN = no data in the weather file], makeup water for
+    the farm [m3 per month: the thermal stage's hourly max(evaporation - rain, 0),
+    unknown rain counted as none], and with *stress* (from
+    :func:`pondsim.pond.stress.monthly_stress_hours`) the hours with the water above the
+    strain's optimum and maximum and below its minimum [h per month].
     """
     idx = forcing.index
     day = pd.Index(idx.date, name="date")
@@ -74,15 +92,18 @@ def monthly_forcing_table(forcing: pd.DataFrame, par, water: pd.DataFrame,
         "ghi": forcing["ghi"].to_numpy() / 1000.0,  # Wh -> kWh per hour
         "par": np.asarray(par, dtype=float) * 3600e-6,  # umol m-2 s-1 over 1 h -> mol m-2
         "evap": water["evaporation"].to_numpy(),
-        "rain": water["rain"].to_numpy() if "rain" in water else 0.0,
+        "makeup": water["makeup"].to_numpy(),
     }, index=day).groupby(level=0).sum()
+    rain_h = water["rain"].to_numpy() if "rain" in water else np.full(len(idx), np.nan)
+    daily["rain"] = pd.Series(rain_h, index=day).groupby(level=0).sum(min_count=1)
     temps = pd.DataFrame({"t": forcing["temp_air"].to_numpy()}, index=day).groupby(level=0)
     daily["tmax"] = temps["t"].max()
     daily["tmin"] = temps["t"].min()
     month = pd.DatetimeIndex(daily.index).month
     by_m = daily.groupby(month)
     hour_m = idx.month
-    makeup_mm = (daily["evap"] - daily["rain"]).clip(lower=0.0)
+    # hour by hour (rain beyond an hour's evaporation overflows), as the thermal stage
+    makeup_mm = daily["makeup"]
     table = pd.DataFrame({
         "GHI kWh/m2/d": by_m["ghi"].mean(),
         "PAR mol/m2/d": by_m["par"].mean(),
@@ -93,15 +114,63 @@ def monthly_forcing_table(forcing: pd.DataFrame, par, water: pd.DataFrame,
         "RH %": forcing["relative_humidity"].groupby(hour_m).mean(),
         "Twater mean C": water["water_temperature"].groupby(hour_m).mean(),
         "evap mm/d": by_m["evap"].mean(),
-        "rain mm": by_m["rain"].sum(),
+        "rain mm": by_m["rain"].sum(min_count=1),
         "makeup m3": makeup_mm.groupby(month).sum() * 1e-3 * pond.farm_area_m2,
     })
-    table.index = pd.Index([pd.Timestamp(2000, m, 1).strftime("%b") for m in table.index],
-                           name="month")
-    table.loc["year"] = [
+    year = [
         daily["ghi"].mean(), daily["par"].mean(), forcing["temp_air"].mean(),
         daily["tmax"].mean(), daily["tmin"].mean(), forcing["wind_speed"].mean(),
         forcing["relative_humidity"].mean(), water["water_temperature"].mean(),
-        daily["evap"].mean(), daily["rain"].sum(),
+        daily["evap"].mean(), daily["rain"].sum(min_count=1),
         makeup_mm.sum() * 1e-3 * pond.farm_area_m2]
+    if stress is not None:
+        for col, label in STRESS_LABELS.items():
+            table[label] = stress[col].reindex(table.index, fill_value=0)
+            year.append(stress[col].sum())
+    table.index = pd.Index([pd.Timestamp(2000, m, 1).strftime("%b") for m in table.index],
+                           name="month")
+    table.loc["year"] = year
+    return table
+
+
+#: Column labels of the stress hours in the monthly tables.
+STRESS_LABELS = {"hours_above_t_opt": "h > Topt", "hours_above_t_max": "h > Tmax",
+                 "hours_below_t_min": "h < Tmin"}
+
+
+def monthly_pond_water(ds) -> pd.DataFrame:
+    """Monthly pond water of a run: temperature, evaporation, rain and stress hours.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        Result of :func:`pondsim.operations.simulate.simulate`; member-dependent daily
+        variables are averaged over members first.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Index month 1-12, columns ``water_temperature_mean_c`` [degC],
+        ``evaporation_mm`` [mm per month], ``rain_mm`` [mm per month, empty = no data],
+        ``hours_above_t_opt``, ``hours_above_t_max``, ``hours_below_t_min`` [h per
+        month, for the strain's nominal cardinal temperatures]; a last row ``year``.
+    """
+    month = pd.DatetimeIndex(ds["date"].values).month
+
+    def daily(name):
+        v = ds[name]
+        if "member" in v.dims:
+            v = v.mean("member")
+        return pd.Series(np.asarray(v.values, dtype=float), index=month)
+
+    table = pd.DataFrame({
+        "water_temperature_mean_c": daily("water_temperature").groupby(level=0).mean(),
+        "evaporation_mm": daily("evaporation").groupby(level=0).sum(),
+        "rain_mm": daily("rain").groupby(level=0).sum(min_count=1),
+        **{k: daily(k).groupby(level=0).sum() for k in STRESS_LABELS if k in ds},
+    })
+    table.index.name = "month"
+    year = table.sum(min_count=1)
+    year["water_temperature_mean_c"] = float(daily("water_temperature").mean())
+    table.loc["year"] = year
     return table

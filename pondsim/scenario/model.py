@@ -44,6 +44,12 @@ class Pond:
     heat_input_w_m2: float
     water_emissivity: float
     refractive_index: float
+    surface_transfer: str = "ryan_harleman"
+    ryan_harleman_wind_w_m2_hpa: float = 3.1
+    free_convection_w_m2_hpa_k13: float = 2.7
+    harbeck_prefactor: float = 0.291
+    harbeck_area_exponent: float = -0.05
+    sky_emissivity: str = "brutsaert"
 
     @property
     def farm_area_m2(self) -> float:
@@ -94,6 +100,10 @@ class Harvest:
     recovery_efficiency: float
     capacity_m3_per_d: float | None
     min_density_g_m3: float
+    floor_g_m3: float | None = None
+    washout_days: int = 7
+    dewatering_capacity_m3_per_d: float | None = None
+    dewatering_cost_kg_per_m3: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -109,13 +119,28 @@ class Policy:
 @dataclass(frozen=True)
 class Crash:
     enabled: bool
-    base_hazard_per_d: float
-    stress_hazard_per_d: float
-    overshoot_onset: float
+    basis: str
+    background_per_d: float
+    background_t_ref_c: float
+    background_q10: float
+    starvation_hazard_per_d: float
     window_days: int
-    drop_scale: float
+    heat_hazard_per_d_h: float
+    cold_hazard_per_d_k: float
+    cold_onset_k: float
     loss_fraction: float
+    salvage_sellable: bool
     max_season_probability: float
+
+    # Names of the hazard before it had named causes, read by the HTML report until it
+    # shows the causes: the background hazard, and the largest weather term's value.
+    @property
+    def base_hazard_per_d(self) -> float:
+        return self.background_per_d
+
+    @property
+    def stress_hazard_per_d(self) -> float:
+        return self.starvation_hazard_per_d
 
 
 @dataclass(frozen=True)
@@ -150,6 +175,10 @@ class Uncertainty:
     draws: int
     sobol_samples: int
     parameters: tuple[Uncertain, ...] = ()
+    p90_target_pct: float = 5.0
+    max_members: int = 2000
+    max_cut_share: float = 0.05
+    farm_crash_correlation: float = 0.0
 
 
 @dataclass(frozen=True)

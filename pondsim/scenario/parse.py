@@ -123,11 +123,26 @@ def _convert(value, key: Key, path, name, base_dir: Path):
     raise AssertionError(kind)  # pragma: no cover - schema bug
 
 
+#: Keys of earlier versions, with what replaced them.
+_CAUSES_NOTE = ("the crash hazard now has named causes (background_per_d, background_q10, "
+                "starvation_hazard_per_d, heat_hazard_per_d_h, cold_hazard_per_d_k; see "
+                "README 'Crash risk'): remove this key")
+RETIRED_KEYS = {
+    "crash.base_hazard_per_d": "renamed: write crash.background_per_d",
+    "crash.stress_hazard_per_d": _CAUSES_NOTE,
+    "crash.overshoot_onset": _CAUSES_NOTE,
+    "crash.drop_scale": _CAUSES_NOTE,
+}
+
+
 def _parse_table(table, keys: dict[str, Key], path, prefix: str, base_dir: Path) -> dict:
     if not isinstance(table, dict):
         raise InputError("expected a table", path=path, field=prefix)
     out = {}
     for name in table:
+        if f"{prefix}.{name}" in RETIRED_KEYS:
+            raise InputError(RETIRED_KEYS[f"{prefix}.{name}"], path=path,
+                             field=f"{prefix}.{name}")
         if name not in keys:
             raise InputError(f"unknown key{did_you_mean(name, keys)}; allowed keys: "
                              + ", ".join(keys), path=path, field=f"{prefix}.{name}")

@@ -91,6 +91,33 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "water_emissivity": Key("float", 0.97, "Longwave emissivity of water.", "1", 0.9, 1.0),
         "refractive_index": Key("float", 1.333, "Refractive index of the medium (Fresnel "
                                 "reflectance).", "1", 1.3, 1.4),
+        "surface_transfer": Key("str", "ryan_harleman", "Heat and vapour transfer at the "
+                                "pond surface: Ryan, Harleman & Stolzenbach (1974) cooling-"
+                                "pond formula (forced + free convection, the default: the "
+                                "one inside the FAO-56 check on most months), Harbeck (1962) "
+                                "area-dependent mass transfer + the same free convection, or "
+                                "the Penman open-water wind function (Shuttleworth 1993).",
+                                choices=("ryan_harleman", "harbeck", "penman_shuttleworth")),
+        "ryan_harleman_wind_w_m2_hpa": Key("float", 3.1, "Forced-convection coefficient b0 "
+                                           "of Ryan et al. (1974) in SI, per m s-1 of wind "
+                                           "at 2 m ([2]: 14 BTU ft-2 d-1 mph-1 mmHg-1).",
+                                           "W m-2 hPa-1 (m s-1)-1", 0.5, 10.0),
+        "free_convection_w_m2_hpa_k13": Key("float", 2.7, "Free-convection coefficient of "
+                                            "Ryan et al. (1974), acting only while the water "
+                                            "is warmer (in virtual temperature) than the air; "
+                                            "0 switches it off.", "W m-2 hPa-1 K-1/3",
+                                            0.0, 10.0),
+        "harbeck_prefactor": Key("float", 0.291, "Harbeck (1962) N = prefactor x area^"
+                                 "exponent, area of one pond in m2, wind at 2 m (from "
+                                 "memory; primary table not seen).",
+                                 "mm d-1 (m s-1)-1 hPa-1", 0.01, 2.0),
+        "harbeck_area_exponent": Key("float", -0.05, "Exponent of the area in Harbeck's N "
+                                     "(from memory).", "1", -0.5, 0.0),
+        "sky_emissivity": Key("str", "brutsaert", "Clear-sky emissivity used where the "
+                              "weather file has no valid infrared field: Brutsaert (1975), "
+                              "Swinbank (1963) or Idso & Jackson (1969), with the cloud "
+                              "correction of Crawford & Duchon (1999).",
+                              choices=("brutsaert", "swinbank", "idso_jackson")),
     },
     "light": {
         "par_fraction": Key("float", None, "PAR (400-700 nm) share of global irradiance "
@@ -149,32 +176,76 @@ SCHEMA: dict[str, dict[str, Key]] = {
                                  "harvest per day.", "m3 d-1", 0.0, 1e6, open_low=True),
         "min_density_g_m3": Key("float", 0.0, "Below this density nothing is harvested.",
                                 "g m-3", 0.0, 20000.0),
+        "floor_g_m3": Key("float", None, "Viable-density floor: no harvest leaves the "
+                          "culture below it (the harvest is cut back to it). Default: the "
+                          "inoculation density, so the culture left after a harvest can "
+                          "always restart growth as a fresh pond would (common practice: "
+                          "semi-continuous ponds keep a residual culture as their own "
+                          "inoculum). 0 lets rules run as written.", "g m-3", 0.0, 20000.0),
+        "washout_days": Key("int", 7, "A member whose culture stays at or below the floor "
+                            "(below it at the harvest hour, or its harvest cut back to it) "
+                            "on more than this many days in a row is flagged as washed "
+                            "out: the rule dilutes faster than the culture grows, or "
+                            "the culture cannot grow there. ASSUMPTION (a week: one "
+                            "operating review).", "d", 1, 365),
+        "dewatering_capacity_m3_per_d": Key("float", None, "Culture volume the whole "
+                                            "farm's dewatering can process per day (all "
+                                            "ponds together); `pondsim tune` keeps the "
+                                            "farm's harvest volume within it (highest "
+                                            "7-day mean, member mean; ponds staggered). "
+                                            "Default: no limit.", "m3 d-1", 0.0, 1e8,
+                                            open_low=True),
+        "dewatering_cost_kg_per_m3": Key("float", 0.0, "Cost of processing one m3 of "
+                                         "harvested culture, as the biomass whose sale "
+                                         "pays for it (cost per m3 / price per kg AFDW). "
+                                         "Above 0, `pondsim tune` maximises net product "
+                                         "= biomass - cost x volume.", "kg m-3", 0.0, 1000.0),
     },
     "crash": {
         "enabled": Key("bool", True, "Draw culture crashes (false: deterministic runs)."),
-        "base_hazard_per_d": Key("float", 0.0005, "Daily crash hazard whatever the weather "
-                                 "(contamination, grazers); 0.0005 is 4.4 % per 90-day "
-                                 "season. ASSUMPTION: replace with the site's crash "
-                                 "history.", "d-1", 0.0, 1.0),
-        "stress_hazard_per_d": Key("float", 0.25, "Largest hazard that overshoot while K "
-                                   "falls can add. ASSUMPTION.", "d-1", 0.0, 50.0),
-        "overshoot_onset": Key("float", 0.8, "Density/K ratio above which overshoot "
-                               "stress counts. ASSUMPTION.", "1", 0.0, 0.99),
-        "window_days": Key("int", 3, "Window of the K-drop index ln K(t-w) - ln K(t).", "d",
-                           1, 30),
-        "drop_scale": Key("float", 0.2, "Fall of ln K over the window that counts as one "
-                          "unit of drop stress (0.2 = K down 18 %). ASSUMPTION.", "1", 0.0,
-                          5.0, open_low=True),
+        "basis": Key("str", "assumption: pondsim defaults, not measured at this site",
+                     "Where the hazard values come from (written by `pondsim hazardfit`; "
+                     "printed beside every crash figure)."),
+        "background_per_d": Key("float", 0.002, "Background hazard (contamination, "
+                                "grazers) at background_t_ref_c: 0.002 is 16 % per 90-day "
+                                "season. ASSUMPTION: fit it to the site's crash log "
+                                "(`pondsim hazardfit`).", "d-1", 0.0, 1.0),
+        "background_t_ref_c": Key("float", 20.0, "Water temperature at which the background "
+                                  "hazard is background_per_d.", "degC", -5.0, 50.0),
+        "background_q10": Key("float", 2.0, "Factor by which the background hazard rises "
+                              "per 10 K of day-mean water temperature (1: no temperature "
+                              "effect); warm water favours grazers. ASSUMPTION: Q10 ~ 2 is "
+                              "common practice for biological rates.", "1", 0.1, 20.0),
+        "starvation_hazard_per_d": Key("float", 0.02, "Light/carbon starvation hazard at a "
+                                       "mean net loss of 0.1 d-1 over window_days (linear "
+                                       "in the loss rate; a culture above what recent days "
+                                       "sustain loses biomass). ASSUMPTION.", "d-1", 0.0,
+                                       50.0),
+        "window_days": Key("int", 3, "Recent days: window of the starvation index (mean "
+                           "net growth rate since inoculation) and of the cold-shock "
+                           "reference temperature.", "d", 1, 30),
+        "heat_hazard_per_d_h": Key("float", 0.02, "Heat hazard per hour of the day with the "
+                                   "water above the strain's t_max_c. ASSUMPTION.",
+                                   "d-1 h-1", 0.0, 10.0),
+        "cold_hazard_per_d_k": Key("float", 0.005, "Cold-shock hazard per kelvin that the "
+                                   "day-mean water temperature falls below the previous "
+                                   "window_days' mean beyond cold_onset_k. ASSUMPTION.",
+                                   "d-1 K-1", 0.0, 10.0),
+        "cold_onset_k": Key("float", 3.0, "Fall of the day-mean water temperature that "
+                            "counts as no shock. ASSUMPTION.", "K", 0.0, 30.0),
         "loss_fraction": Key("float", 0.8, "Share of standing biomass lost in a crash (the "
-                             "rest is salvaged as harvest).", "1", 0.0, 1.0),
+                             "rest is salvage, booked apart from harvest).", "1", 0.0, 1.0),
+        "salvage_sellable": Key("bool", False, "Count crash salvage (x recovery efficiency) "
+                                "as harvested product."),
         "max_season_probability": Key("float", 0.10, "Risk limit: highest acceptable "
                                       "probability of at least one crash in a season when "
                                       "naming the best policy per season.", "1", 0.0, 1.0,
                                       open_low=True),
     },
     "run": {
-        "members": Key("int", 1, "Stochastic members (crash draws) per policy.", "", 1,
-                       1000000),
+        "members": Key("int", 1, "Crash replicates per driver set (weather year x "
+                       "parameter draw) and policy; the same meaning as --members of every "
+                       "command.", "", 1, 1000000),
         "seed": Key("int", 12345, "Seed of the random streams (same seed, same result).",
                     "", 0, 2**63 - 1),
         "progress": Key("bool", True, "Show progress bars on long runs."),
@@ -215,12 +286,31 @@ PLAN_KEYS: dict[str, Key] = {
 }
 
 UNCERTAINTY_KEYS: dict[str, Key] = {
-    "weather_years": Key("int", 20, "Synthetic weather years for outlook and tuning studies.",
-                         "", 1, 10000),
-    "draws": Key("int", 16, "Parameter draws (Latin hypercube) for outlook studies.", "",
-                 1, 10000),
+    "weather_years": Key("int", 20, "Synthetic weather years for tuning studies and the "
+                         "first round of an outlook (a file of real years uses all of "
+                         "them).", "", 1, 10000),
+    "draws": Key("int", 16, "Parameter draws (Latin hypercube) per weather year for outlook "
+                 "studies; every weather year has its own draws.", "", 1, 10000),
     "sobol_samples": Key("int", 64, "Base samples for Sobol sensitivity indices (a power "
                          "of two; cost = samples x (parameters + 2) runs).", "", 8, 8192),
+    "p90_target_pct": Key("float", 5.0, "Outlook convergence target: the ensemble grows "
+                          "until the 95 % interval half-width of the lead policy's P90 is "
+                          "at most this share of its P50 (assumption: 5 % keeps a default "
+                          "outlook within minutes; set 2 for a lender's figure).", "%",
+                          0.1, 100.0, open_low=True),
+    "max_members": Key("int", 2000, "Outlook cap: the ensemble stops growing before it "
+                       "would exceed this many members per policy (weather years x draws "
+                       "x crash replicates) and reports 'not converged'.", "", 1, 1000000),
+    "max_cut_share": Key("float", 0.05, "Largest share of an uncertain parameter's "
+                         "distribution that its allowed strain range may cut away "
+                         "(truncation); more is refused. Also the largest share of draws "
+                         "allowed to break t_min < t_opt < t_max before they are refused "
+                         "rather than redrawn (assumption).", "1", 0.0, 0.5),
+    "farm_crash_correlation": Key("float", 0.0, "Correlation of crash losses between the "
+                                  "farm's ponds in the same weather year and draw (0: each "
+                                  "pond crashes independently; 1: all ponds together). "
+                                  "Assumption: no published value; ponds sharing inoculum "
+                                  "or staff are likely above 0.", "1", 0.0, 1.0),
 }
 
 #: [inputs]: what the ponds consume and how their mixing is built (the inputs bill).

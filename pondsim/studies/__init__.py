@@ -3,6 +3,7 @@
 ``compare`` ranks policies by season; ``tune`` searches the harvest plan per season;
 ``outlook`` gives P50/P90 yields over weather years and parameter draws, with
 ``uncertainty`` drawing parameters and computing Sobol indices; ``inputs_bill`` prices what
-the ponds consume; ``calibrate`` fits growth parameters to pilot data; ``screen`` runs
-many sites.
+the ponds consume; ``calibrate`` (modules ``fit_*``) fits growth parameters to pilot
+data; ``crash_*`` fit the crash hazard to a site's pond log; ``screen`` runs many
+sites.
 """

@@ -376,6 +376,9 @@ def cmd_screen(args) -> int:
         if str(r["site_check"]).startswith("FAILED"):
             print(f"WARNING {r['site']}: site check {r['site_check']}")
     print("\nP90 = annual yield exceeded in 90 % of weather years x crash replicates.")
+    print("crashes/yr = expected crashes per pond per year over the same synthetic weather "
+          "years x crash replicates of each site (not the scenario's single weather year); "
+          f"hazard values: {scenario.crash.basis}.")
     if report.dataset is not None and (report.dataset["weather_notes"].str.contains(
             "clear-sky mode")).any():
         print("Sites from monthly normals (clear-sky mode) have no day-to-day weather: "

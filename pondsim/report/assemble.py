@@ -1,0 +1,250 @@
+"""Data assembly of the report: tables computed from the results Dataset (monthly
+drivers, crashes by month, the single-K view) and the table of every assumption."""
+
+from __future__ import annotations
+
+import tomllib
+
+import numpy as np
+import pandas as pd
+
+# ---------------------------------------------------------------------------------------
+# Tables computed from the results Dataset (all written to CSV)
+# ---------------------------------------------------------------------------------------
+
+def _with_member(da):
+    return da if "member" in da.dims else da.expand_dims(member=[0])
+
+
+def monthly_drivers(ds) -> pd.DataFrame:
+    """Per month: 10th/50th/90th percentiles over the ensemble of mean daily PAR entering
+    the culture [mol m-2 d-1], mean water temperature [degC] and mean carrying capacity [g m-3]; the
+    median of mean daily GHI [MJ m-2 d-1] and evaporation [mm d-1]."""
+    month = ds["date"].dt.month
+    out = {}
+    spec = (("par_mol_m2_d", "par_daily", True), ("water_temperature_c", "water_temperature",
+                                                   True),
+            ("k_g_m3", "carrying_capacity", True), ("ghi_MJ_m2_d", "ghi_daily", False),
+            ("evaporation_mm_d", "evaporation", False))
+    for name, var, bands in spec:
+        monthly = _with_member(ds[var]).groupby(month).mean("day")  # (member, month)
+        values = monthly.transpose("month", "member").values
+        if bands:
+            for q in (10, 50, 90):
+                out[f"{name}_pct{q}"] = np.percentile(values, q, axis=1)
+        else:
+            out[f"{name}_pct50"] = np.median(values, axis=1)
+    return pd.DataFrame(out, index=pd.Index(monthly["month"].values.astype(int),
+                                            name="month"))
+
+
+def crash_months(ds) -> pd.DataFrame:
+    """Per policy and month: expected crashes [per month], probability of at least one
+    crash in the month [-], mean daily crash probability [%] and days at risk [d] (member
+    means; see :func:`pondsim.studies.compare.at_risk`)."""
+    from pondsim.studies.compare import at_risk
+
+    month = ds["date"].dt.month
+    crashes = ds["crashed"].astype(float).groupby(month).sum("day")  # (policy, member, m)
+    daily_p = -np.expm1(-ds["hazard"].astype(float))
+    mean_p = daily_p.groupby(month).mean("day").mean("member")
+    risk = at_risk(ds).astype(float).groupby(month).sum("day").mean("member")
+    rows = []
+    for pol in ds["policy"].values:
+        for m in crashes["month"].values:
+            c = crashes.sel(policy=pol, month=m).values
+            rows.append({"policy": str(pol), "month": int(m),
+                         "expected_crashes": float(c.mean()),
+                         "p_crash": float((c > 0).mean()),
+                         "daily_crash_probability_pct": 100 * float(
+                             mean_p.sel(policy=pol, month=m)),
+                         "days_at_risk": float(risk.sel(policy=pol, month=m))})
+    return pd.DataFrame(rows).set_index(["policy", "month"])
+
+
+def _single_k_view(ds):
+    """The ensemble with the day-by-day median K over members, for the figures and the
+    calendar of :mod:`pondsim.studies.compare`, which take one K series."""
+    k = ds["carrying_capacity"]
+    if "member" not in k.dims:
+        return ds
+    view = ds.copy()
+    view["carrying_capacity"] = k.median("member").assign_attrs(k.attrs)
+    return view
+
+
+# ---------------------------------------------------------------------------------------
+# The assumption table
+# ---------------------------------------------------------------------------------------
+
+#: Coefficients of the inputs bill (pondsim.studies.inputs_bill.InputsParams): unit and source.
+BILL_PARAMETERS = {
+    "carbon_fraction": ("kg C kg-1", "Carbon share of dry biomass, about 50 % (Chisti 2007, "
+                        "Biotechnol. Adv. 25:294-306; from memory)."),
+    "co2_utilisation": ("1", "Share of the supplied CO2 that the culture takes up (common "
+                        "practice)."),
+    "n_fraction": ("kg N kg-1", "Nitrogen share of dry biomass (from memory)."),
+    "p_fraction": ("kg P kg-1", "Phosphorus share of dry biomass (from memory)."),
+    "n_fertiliser": ("", "Nitrogen product."),
+    "p_fertiliser": ("", "Phosphorus product."),
+    "recycle_fraction": ("1", "Share of harvested medium returned to the ponds after "
+                         "dewatering (common practice; 0.9 from memory of design studies)."),
+    "harvest_density_g_m3": ("g m-3", "Density at harvest, used only when no harvested "
+                             "volume is known (common practice 300-1000 g m-3)."),
+    "manning_n": ("s m-1/3", "Manning roughness of the channel, float-finished concrete "
+                  "(Chow 1959, Open-Channel Hydraulics, Table 5-6; from memory)."),
+    "bend_k": ("1", "Loss of one 180 degree bend in velocity heads (raceway design texts; "
+               "from memory)."),
+    "paddlewheel_efficiency": ("1", "Wire-to-water efficiency of the paddlewheel drive "
+                               "(from memory, not verified)."),
+    "mixing_hours_per_day": ("h d-1", "Paddlewheels run around the clock (common "
+                             "practice)."),
+    "length_to_width": ("1", "Pond proportion when the channel width is not given (common "
+                        "practice)."),
+    "n_channels": ("", "Channels of one raceway (one bend per channel end)."),
+}
+
+#: Model constants that every run uses.
+MODEL_CONSTANTS = (
+    ("biomass energy content", "kJ g-1", "BIOMASS_ENERGY_KJ_G",
+     "Weyer et al. (2010) BioEnergy Res. 3:204-213 (secondary); used for the "
+     "photosynthetic efficiency."),
+    ("highest credible solar-to-biomass efficiency", "1", "MAX_SOLAR_EFFICIENCY",
+     "C3 photosynthesis maximum, Zhu, Long & Ort (2008) Curr. Opin. Biotechnol. "
+     "19:153-159."),
+    ("diffuse reflectance of the water surface", "1", "DIFFUSE_REFLECTANCE",
+     "Fresnel reflectance integrated over a uniform sky; Payne (1972) J. Atmos. Sci. "
+     "29:959-970 measured 0.061."),
+)
+
+
+def _format_value(v) -> str:
+    if v is None:
+        return "not set"
+    if isinstance(v, bool):
+        return "true" if v else "false"
+    if isinstance(v, float):
+        return f"{v:g}"
+    if isinstance(v, tuple | list):
+        return ", ".join(_format_value(x) for x in v)
+    if isinstance(v, dict):
+        return "; ".join(f"{k} = {_format_value(x)}" for k, x in v.items())
+    return str(v)
+
+
+def assumption_table(scenario, *, options: dict, mixing: dict, bill_params: dict,
+                     photons_per_joule: float) -> pd.DataFrame:
+    """Every parameter of the study with its unit, value and source.
+
+    ``source`` is ``scenario`` for a value set in the scenario file, ``default`` for a
+    schema default (``note`` then holds the schema's doc text with its source or
+    ASSUMPTION mark), and ``derived``, ``run option`` or ``model constant`` otherwise.
+    """
+    from pondsim.pond import light
+    from pondsim.results import tables as results
+    from pondsim.scenario import POLICY_KEYS, SCHEMA, UNCERTAINTY_KEYS
+
+    with open(scenario.path, "rb") as fh:
+        raw = tomllib.load(fh)
+    objects = {"site": scenario.site, "weather": scenario.weather, "pond": scenario.pond,
+               "light": scenario.light, "strain": scenario.strain,
+               "inoculation": scenario.inoculation, "harvest": scenario.harvest,
+               "crash": scenario.crash, "run": scenario.run}
+    rows = []
+
+    def add(group, key, unit, value, source, note):
+        rows.append({"group": group, "key": key, "unit": unit, "value": _format_value(value),
+                     "source": source, "note": note})
+
+    for section, keys in SCHEMA.items():
+        if section == "weather.normals":
+            if scenario.weather.source != "clearsky":
+                continue
+            given = raw.get("weather", {}).get("normals", {})
+            values = scenario.weather.normals or {}
+        else:
+            given = raw.get(section, {})
+            values = None
+        for name, key in keys.items():
+            if section == "study":
+                value = scenario.study_name if name == "name" else scenario.year
+            elif section == "weather" and name == "path":
+                value = given.get("path")
+            elif values is not None:
+                value = values.get(name)
+            else:
+                value = getattr(objects[section], name)
+            source = "scenario" if name in given else "default"
+            add(section, name, key.unit, value, source, key.doc)
+
+    for i, pol in enumerate(scenario.policies):
+        given = (raw.get("policy") or [{}])[i] if raw.get("policy") else {}
+        for name, key in POLICY_KEYS.items():
+            value = getattr(pol, name)
+            if value is None:
+                continue
+            add(f"policy[{i + 1}]", name, key.unit, value,
+                "scenario" if name in given else "default", key.doc)
+    season_source = "scenario" if "season" in raw else "default"
+    for s in scenario.seasons:
+        add("season", s.name, "month", s.months, season_source,
+            "Calendar months of the season" + ("" if "season" in raw else
+                                               " (default meteorological seasons)."))
+    for plan in scenario.plans:
+        add("plan", plan.name, "", plan.policy_by_season, "scenario",
+            "Policy run in each season.")
+    given = raw.get("uncertainty", {})
+    for name, key in UNCERTAINTY_KEYS.items():
+        add("uncertainty", name, key.unit, getattr(scenario.uncertainty, name),
+            "scenario" if name in given else "default", key.doc)
+    for u in scenario.uncertainty.parameters:
+        spread = {k: getattr(u, k) for k in ("sd", "sigma", "low", "high")
+                  if getattr(u, k) is not None}
+        centre = {"normal": "the strain's value is the mean",
+                  "lognormal": "the strain's value is the median",
+                  "triangular": "the strain's value is the mode",
+                  "uniform": "the range brackets the strain's value"}[u.distribution]
+        add("uncertainty", u.parameter, SCHEMA["strain"][u.parameter].unit,
+            f"{u.distribution}: " + _format_value(spread), "scenario",
+            f"Uncertain strain parameter; {centre}.")
+
+    for name, value, note in (
+            ("weather_years", options["weather_years"], "Synthetic weather years resampled "
+             "from the weather file (or the file's own real years when it holds several)."),
+            ("parameter_draws", options["parameter_draws"], "Latin hypercube draws of the "
+             "uncertain strain parameters."),
+            ("crash_replicates", options["crash_replicates"], "Crash draws per weather "
+             "year and parameter draw."),
+            ("seed", options["seed"], "Seed of weather years, draws and crashes."),
+            ("sobol_samples", options["sobol_samples"], "Base samples of the Sobol "
+             "indices (0: not computed).")):
+        add("option", name, "", value, "run option", note)
+
+    for name, value in bill_params.items():
+        unit, note = BILL_PARAMETERS.get(name, ("", ""))
+        add("inputs", name, unit, value, "default", note)
+    add("inputs", "prices", "", "not priced", "default",
+        "Scenario files hold no prices yet; the bill gives quantities only.")
+    for name, unit, note in (("channel_width_m", "m", "Raceway channel width from the "
+                              "pond area and proportion."),
+                             ("channel_length_m", "m", "Flow path of one circuit."),
+                             ("velocity_m_s", "m s-1", "Design mean channel velocity "
+                              "(common practice 0.2-0.3 m s-1)."),
+                             ("head_m", "m", "Head loss of one circuit: Manning friction "
+                              "plus bends."),
+                             ("power_w", "W", "Paddlewheel power of one pond.")):
+        add("mixing", name, unit, float(mixing[name]), "derived", note)
+
+    par_fraction = scenario.light.par_fraction
+    if par_fraction is None:
+        add("light_used", "par_fraction", "1", float(light.par_fraction_astm_g173()),
+            "derived", "Integrated from the ASTM G173-03 spectrum over 400-700 nm.")
+    if scenario.light.photons_per_joule_umol is None:
+        add("light_used", "photons_per_joule_umol", "umol J-1", float(photons_per_joule),
+            "derived", "Integrated from the ASTM G173-03 spectrum over 400-700 nm.")
+    for label, unit, attr, note in MODEL_CONSTANTS:
+        module = light if attr == "DIFFUSE_REFLECTANCE" else results
+        add("constant", attr.lower(), unit, float(getattr(module, attr)), "model constant",
+            f"{label[0].upper()}{label[1:]}: {note}")
+    return pd.DataFrame(rows)
+

@@ -1,0 +1,109 @@
+"""Running the studies of a report: the outlook ensemble, the season comparison, the
+crash-risk calendar, the inputs bill and the Sobol sensitivity; every table, the netCDF
+results, the figures and, last, the manifest are written into the output folder."""
+
+from __future__ import annotations
+
+import datetime as dt
+import json
+import math
+from pathlib import Path
+
+import numpy as np
+
+from pondsim.report.assemble import _single_k_view, assumption_table, crash_months, monthly_drivers
+from pondsim.report.manifest import MANIFEST, MANIFEST_FORMAT, _expected_files, _file_sha256
+from pondsim.results.files import atomic_write
+
+# ---------------------------------------------------------------------------------------
+# Running the study
+# ---------------------------------------------------------------------------------------
+
+def run_study(scenario, out_dir, fingerprint: dict) -> dict:
+    """Run the study, write every table, the netCDF results and the figures into
+    *out_dir*, and return the manifest (written last)."""
+    from pondsim.operations.crash import CrashModel
+    from pondsim.operations.simulate import crash_model_of
+    from pondsim.results.figstyle import context_of, source_of
+    from pondsim.results.figures import compare_figures, drivers_figure, outlook_figures
+    from pondsim.results.files import save, write_csv
+    from pondsim.results.tables import policy_summary
+    from pondsim.studies.compare import best_by_season, risk_calendar, season_table
+    from pondsim.studies.inputs_bill import bill_from_results
+    from pondsim.studies.outlook import annual_table, monthly_bands, run_outlook, sensitivity
+
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+    (out / MANIFEST).unlink(missing_ok=True)  # a run that stops leaves nothing to reuse
+    opt = fingerprint["options"]
+    ds, meta = run_outlook(scenario, n_years=opt["weather_years"],
+                           n_draws=opt["parameter_draws"], members=opt["crash_replicates"],
+                           seed=opt["seed"], progress=scenario.run.progress)
+    annual = annual_table(ds, scenario.pond.farm_area_m2)
+    lead = str(annual["P50_t_ha_yr"].idxmax())
+    bands = monthly_bands(ds)
+    summary = policy_summary(ds)
+    crash = crash_model_of(scenario) or CrashModel()  # calendar only when switched off
+    view = _single_k_view(ds)
+    seasons = season_table(ds)
+    best = best_by_season(seasons, scenario.crash.max_season_probability)
+    calendar = risk_calendar(view, crash)
+    drivers = monthly_drivers(ds)
+    sens = None
+    if opt["sensitivity"]:
+        sens = sensitivity(scenario, lead, n=opt["sobol_samples"], seed=opt["seed"])
+    quiet = ds.copy()
+    for name in ("evaporation", "rain"):
+        if "member" in ds[name].dims:
+            quiet[name] = ds[name].mean("member")
+    rain = quiet["rain"].values
+    bill = bill_from_results(quiet, policy=lead,
+                             rain_mm_daily=None if np.isnan(rain).all() else rain)
+    assumptions = assumption_table(scenario, options=opt, mixing=bill.attrs["mixing"],
+                                   bill_params=bill.attrs["params"],
+                                   photons_per_joule=ds.attrs["photons_per_joule_umol"])
+
+    save(ds, out / "results.nc")
+    tables = {"annual_yield.csv": annual, "summary.csv": summary,
+              "monthly_bands.csv": bands, "monthly_drivers.csv": drivers,
+              "comparison.csv": seasons, "best_by_season.csv": best,
+              "crash_months.csv": crash_months(ds), "inputs_bill.csv": bill}
+    for name, table in tables.items():
+        write_csv(table, out / name)
+    write_csv(calendar, out / "risk_calendar.csv", index=False)
+    write_csv(assumptions, out / "assumptions.csv", index=False)
+    if sens is not None:
+        write_csv(sens, out / "sensitivity.csv")
+    outlook_figures(ds, bands, sens, out, policy=lead)
+    compare_figures(view, seasons, crash, out)
+    drivers_figure(drivers, scenario.strain, out / "monthly_drivers.png",
+                   context=context_of(ds), source=source_of(ds))
+
+    names = _expected_files(opt)
+    manifest = {
+        "format": MANIFEST_FORMAT, **fingerprint,
+        "computed": dt.datetime.now().astimezone().isoformat(timespec="seconds"),
+        "lead_policy": lead,
+        "site": {"name": str(ds.attrs.get("site", "")),
+                 "latitude": _finite(ds.attrs.get("latitude")),
+                 "longitude": _finite(ds.attrs.get("longitude"))},
+        "ensemble": {"weather_years": int(ds.attrs.get("weather_years", 1)),
+                     "parameter_draws": int(ds.attrs.get("parameter_draws", 1)),
+                     "replicates": int(ds.attrs.get("replicates", 1)),
+                     "members": int(ds.sizes["member"]), "days": int(ds.sizes["day"]),
+                     "converged": (None if ds.attrs.get("converged") is None
+                                   else bool(int(ds.attrs["converged"])))},
+        "weather_notes": [str(n) for n in meta.get("notes", [])],
+        "files": {name: _file_sha256(out / name) for name in names},
+    }
+    text = json.dumps(manifest, indent=2, sort_keys=True) + "\n"
+    atomic_write(out / MANIFEST, lambda tmp: Path(tmp).write_text(text, encoding="utf-8"))
+    return manifest
+
+
+def _finite(v):
+    try:
+        v = float(v)
+    except (TypeError, ValueError):
+        return None
+    return v if math.isfinite(v) else None
