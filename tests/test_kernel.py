@@ -32,6 +32,9 @@ from pondsim.operations.crash import CrashModel
 from pondsim.operations.harvest import HarvestRules, removal_fraction
 
 RTOL, ATOL = 1e-5, 1e-9
+not_ported = pytest.mark.skipif(
+    not kernel.PORTED, reason="compiled kernel not yet ported to the named-cause crash "
+    "hazard, salvage booking and viable floor (see pondsim/operations/kernel.py)")
 FIELDS = ("density", "removed", "harvest_fraction", "growth_rate", "lost", "sampled",
           "grown", "respired")
 
@@ -68,6 +71,7 @@ def _cases(module):
             and not inspect.signature(fn).parameters]
 
 
+@not_ported
 @pytest.mark.parametrize("module,name", _cases(test_engine) + _cases(test_crash))
 def test_every_engine_case_agrees(monkeypatch, module, name):
     """Each engine and crash test, with both engines compared on every integrate call."""
@@ -75,6 +79,7 @@ def test_every_engine_case_agrees(monkeypatch, module, name):
     getattr(module, name)()
 
 
+@not_ported
 @pytest.mark.parametrize("form,model", [("logistic", "steele"), ("logistic", "monod"),
                                         ("self_shading", "steele"),
                                         ("self_shading", "monod")])
@@ -128,6 +133,7 @@ def test_harvest_share_matches_removal_fraction():
         assert f == pytest.approx(frac[j], rel=1e-15, abs=0.0) and s == sched[j]
 
 
+@not_ported
 def test_crash_hazard_and_outcome_match_the_crash_model():
     rng = np.random.default_rng(2)
     cm = CrashModel(base_hazard_per_d=0.002, stress_hazard_per_d=0.4, overshoot_onset=0.7,
@@ -140,6 +146,20 @@ def test_crash_hazard_and_outcome_match_the_crash_model():
     np.testing.assert_allclose(got, ref, rtol=1e-14)
     lost, salvage = kernel.crash_outcome(300.0, cm.loss_fraction)
     assert lost == pytest.approx(180.0) and salvage == pytest.approx(120.0)
+
+
+def test_compiled_runs_on_numpy_until_ported():
+    """While the kernel lags the engine's semantics, engine="compiled" is the numpy
+    engine, bit for bit (no silently different results)."""
+    if kernel.PORTED:
+        pytest.skip("kernel ported")
+    n_days = 20
+    d = drivers(diurnal_par(n_days), growth_form="self_shading", n_days=None)
+    a = engine.integrate(d, rules(3, n_days, code=1, fraction=0.2), OPERATION)
+    b = engine.integrate(d, rules(3, n_days, code=1, fraction=0.2), OPERATION,
+                         engine="compiled")
+    np.testing.assert_array_equal(a.density, b.density)
+    assert not kernel.supports(d)
 
 
 def test_unsupported_light_model_runs_on_numpy():

@@ -53,9 +53,9 @@ def test_memory_estimate_is_the_measured_size(demo, tmp_path):
     from pondsim.results.files import save
 
     scenario, forcing = demo
-    # The compiled engine: tracemalloc would slow the numpy engine's many small arrays.
+    # The compiled engine when it is ported (tracemalloc slows the numpy engine).
     scenario = scenario.replace(run=dataclasses.replace(scenario.run, engine="compiled"))
-    members = 50
+    members = 20
     sim.simulate(scenario, members=2, forcing=forcing, progress=False)  # warm caches
     tracemalloc.start()
     try:

@@ -1,6 +1,17 @@
 """The compiled integrator: the day and hour loop of :mod:`pondsim.operations.engine`,
 one member at a time, in machine code (numba).
 
+STATUS: NOT YET PORTED to the engine semantics merged on 2026-12-02 (named-cause crash
+hazard with separate salvage booking, viable-density floor, per-member inoculation,
+logistic gross capacity K_g). This kernel implements the engine as it was before them
+(commit c821a97 of branch issue-19). Until :data:`PORTED` is True, :func:`supports` is
+False and ``engine="compiled"`` runs the numpy engine; the equivalence tests in
+``tests/test_kernel.py`` are skipped. To port: bring :func:`crash_hazard` /
+:func:`crash_outcome` / :func:`harvest_share` and the logistic branch of
+:func:`_gross_rate` up to ``operations.crash``, ``operations.harvest.cut_back_to_floor``
+and ``engine.logistic_inverse_capacity``, add the new daily outputs (salvaged, cause,
+at_floor), set PORTED = True and make the tests pass.
+
 Same model, same order of events and same random streams as the numpy engine, which stays
 the reference (``engine="numpy"``); ``tests/test_kernel.py`` runs every engine and crash
 test case through both and compares them. Where the two differ, and why:
@@ -58,8 +69,16 @@ _LEDGER = ("inoculated", "grown", "respired", "removed", "lost")
 _JIT = dict(cache=True, error_model="numpy")
 
 
+#: Whether this kernel implements the numpy engine's current semantics (see the module
+#: docstring). False: every call runs on the numpy engine.
+PORTED = False
+
+
 def supports(drivers: Drivers) -> bool:
-    """Whether the compiled kernel covers this growth form and light model."""
+    """Whether the compiled kernel covers this engine version, growth form and light
+    model."""
+    if not PORTED:
+        return False
     if drivers.growth_form == "logistic":
         return True
     return drivers.growth_form == "self_shading" and isinstance(drivers.light_model, str) \

@@ -251,7 +251,9 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "progress": Key("bool", True, "Show progress bars on long runs."),
         "engine": Key("str", "numpy", "Integrator: 'numpy' (the reference) or 'compiled' "
                       "(numba; same model and random streams, results within ~1e-6 "
-                      "relative, many times faster for small ensembles).",
+                      "relative, many times faster for small ensembles). Until the "
+                      "compiled kernel is ported to the current crash and harvest-floor "
+                      "rules, 'compiled' runs the numpy engine.",
                       choices=("numpy", "compiled")),
     },
 }
