@@ -431,3 +431,15 @@ def test_persistence_shifts_whole_days_at_constant_vapour_pressure(source):
     np.testing.assert_allclose(e_m[ok], e_p[ok], rtol=1e-9)
     for col in ("ghi", "wind_speed", "pressure"):
         np.testing.assert_array_equal(moved.data[col], plain.data[col])
+
+
+def test_no_data_rain_hours_travel_with_their_days(source):
+    """Rain kept as "no data" (NaN) for a few hours does not stop the generator; the
+    required columns stay complete (rain is resampled by whole days, gaps included)."""
+    forcing = source[0].copy()
+    forcing["precipitation"] = 0.1
+    forcing.iloc[100:103, forcing.columns.get_loc("precipitation")] = np.nan
+    years = wy.generate_years(forcing, 3, seed=SEED)
+    for y in years:
+        assert np.isfinite(y[list(REQUIRED_COLUMNS)].to_numpy()).all()
+        assert y["precipitation"].isna().sum() % 3 == 0  # whole 3-hour gaps or none

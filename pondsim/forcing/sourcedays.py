@@ -12,6 +12,7 @@ import numpy as np
 import pandas as pd
 
 from pondsim.errors import InputError
+from pondsim.forcing.columns import OPTIONAL_COLUMNS
 
 _HOURS_PER_DAY = 24
 
@@ -64,8 +65,12 @@ def _library(years: Sequence[pd.DataFrame]) -> _Library:
     for y in years:
         n_days = len(y) // _HOURS_PER_DAY
         v = y.to_numpy(dtype=float).T.reshape(len(columns), n_days, _HOURS_PER_DAY)
-        if not np.isfinite(v).all():
-            col = columns[int(np.flatnonzero(~np.isfinite(v).all(axis=(1, 2)))[0])]
+        # Optional columns (precipitation, sky infrared) may carry "no data" hours: whole
+        # days are resampled as they are, so their gaps travel with them.
+        required = [i for i, c in enumerate(columns) if c not in OPTIONAL_COLUMNS]
+        if not np.isfinite(v[required]).all():
+            bad = ~np.isfinite(v[required]).all(axis=(1, 2))
+            col = columns[required[int(np.flatnonzero(bad)[0])]]
             raise InputError("source forcing has missing (NaN) values", field=col)
         vals.append(v)
         days = y.index[::_HOURS_PER_DAY]
