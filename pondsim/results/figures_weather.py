@@ -187,10 +187,12 @@ def weather_figure(table: pd.DataFrame, water: pd.DataFrame, forcing: pd.DataFra
         ax.set_ylabel("hours per month [h]")
         ax.set_title("Heat and cold stress of the strain", fontsize=10)
         fs.legend_right(ax)
-    else:
-        ax.axis("off")
-        ax.text(0.5, 0.5, "stress hours need a strain:\nrun `pondsim weather` on a scenario",
-                ha="center", va="center", fontsize=10, transform=ax.transAxes)
+    else:  # no strain (a bare weather file): a note where the panel would be, no axes
+        box = ax.get_position()
+        ax.remove()
+        fig.text(box.x0 + 0.5 * box.width, box.y0 + 0.5 * box.height,
+                 "stress hours need a strain:\nrun `pondsim weather` on a scenario",
+                 ha="center", va="center", fontsize=10)
     return fs.save(fig, path)
 
 
