@@ -37,7 +37,7 @@ def cmd_outlook(args) -> int:
     members = args.members or (max(scenario.run.members, OUTLOOK_REPLICATES) if crashes
                                else scenario.run.members)
     seed = scenario.run.seed if args.seed is None else args.seed
-    _check_memory(scenario, args.members, n_years * n_draws)
+    _check_memory(scenario, members, n_years * n_draws)
     with _output_set(args, "outlook", "-outlook", seed) as files:
         t0 = time.perf_counter()
         print(f"{scenario.study_name}: outlook, {n_draws} parameter draw(s) per weather "
