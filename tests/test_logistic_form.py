@@ -81,9 +81,13 @@ def logistic_demo(tmp_path_factory):
     root = Path(__file__).resolve().parents[1]
     text = (root / "scenarios" / "kestrel_flats.toml").read_text(encoding="utf-8")
     text = text.replace('growth_form = "self_shading"', 'growth_form = "logistic"')
+    # A strain that stops growing below 12 degC: the demo's winter water (about 10 degC
+    # in December) then gives days with no net growth, K = 0.
+    text = text.replace("t_min_c = 2 ", "t_min_c = 12 ")
     text = text.replace('"../weather/kestrel_flats.epw"',
                         f'"{(root / "weather" / "kestrel_flats.epw").as_posix()}"')
     assert 'growth_form = "logistic"' in text and "capacity_table" not in text
+    assert "t_min_c = 12 " in text
     path = tmp_path_factory.mktemp("logistic") / "logistic.toml"
     path.write_text(text, encoding="utf-8")
     return path
