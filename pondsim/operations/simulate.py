@@ -343,13 +343,20 @@ def simulate(scenario: Scenario, members: int | None = None, seed: int | None = 
 #: with tracemalloc on the demo (benchmarks.engine); an estimate, not a bound.
 BYTES_PER_SERIES_DAY = 140
 
+#: Peak bytes of a run that do not grow with the members: the hourly forcing, light and
+#: water tables and driver arrays of one driver set (weather year x draw) and the
+#: Dataset's per-day variables; measured with tracemalloc on the demo as the intercept of
+#: peak against members (about 14 MB at 4 policies), rounded up.
+BYTES_PER_DRIVER_SET = 16_000_000
+
 
 def memory_estimate(scenario: Scenario, members: int, n_sets: int = 1) -> int:
     """Peak memory [bytes] of simulating and writing ``members`` crash members of each of
     ``n_sets`` driver sets (weather years × parameter draws) for every policy and plan."""
     n_days = pd.Timestamp(year=scenario.year, month=12, day=31).dayofyear
     entries = len(scenario.policies) + len(scenario.plans)
-    return int(entries) * int(members) * int(n_sets) * n_days * BYTES_PER_SERIES_DAY
+    return (int(n_sets) * BYTES_PER_DRIVER_SET
+            + int(entries) * int(members) * int(n_sets) * n_days * BYTES_PER_SERIES_DAY)
 
 
 def memory_available() -> int:
