@@ -1,40 +1,37 @@
 """The compiled integrator: the day and hour loop of :mod:`pondsim.operations.engine`,
 one member at a time, in machine code (numba).
 
-STATUS: NOT YET PORTED to the engine semantics merged on 2026-12-02 (named-cause crash
-hazard with separate salvage booking, viable-density floor, per-member inoculation,
-logistic gross capacity K_g). This kernel implements the engine as it was before them
-(commit c821a97 of branch issue-19). Until :data:`PORTED` is True, :func:`supports` is
-False and ``engine="compiled"`` runs the numpy engine; the equivalence tests in
-``tests/test_kernel.py`` are skipped. To port: bring :func:`crash_hazard` /
-:func:`crash_outcome` / :func:`harvest_share` and the logistic branch of
-:func:`_gross_rate` up to ``operations.crash``, ``operations.harvest.cut_back_to_floor``
-and ``engine.logistic_inverse_capacity``, add the new daily outputs (salvaged, cause,
-at_floor), set PORTED = True and make the tests pass.
-
-Same model, same order of events and same random streams as the numpy engine, which stays
-the reference (``engine="numpy"``); ``tests/test_kernel.py`` runs every engine and crash
-test case through both and compares them. Where the two differ, and why:
+Same model, same order of events, same daily outputs and the same random streams as the
+numpy engine, which stays the reference (``engine="numpy"``): the harvest rule and its
+viable-density floor at the harvest hour (:func:`harvest_share`, :func:`floor_share`),
+one Runge–Kutta step per lit hour and the exact decay of dark hours, the crash hazard of
+named causes at the end of the day (:func:`cause_of_crash`), salvage booked apart from
+harvest, and the ledger. ``tests/test_kernel.py`` runs every engine and crash test case
+through both engines and compares them. Where the two differ, and why:
 
 * the numpy engine takes the state-dependent ``exp(-tau)`` of the self-shading light mean
   in single precision (relative error ~6e-8, see
   :func:`pondsim.operations.engine._transmission`); this kernel takes it in double
-  precision with ``expm1`` (no cancellation, so no series is needed). Daily densities and
-  annual harvests therefore agree to ~1e-6 relative, not to the last bit; the logistic
-  form agrees to rounding (~1e-12).
+  precision. Daily densities and annual harvests therefore agree to ~1e-6 relative, not
+  to the last bit; the logistic form agrees to rounding (~1e-12).
+* the weather terms of the crash hazard (background with its Q10, heat, cold shock) are
+  computed once per driver set and day by the numpy functions of
+  :mod:`pondsim.operations.crash` and passed in, so they are the same numbers; only the
+  starvation term (the member's own recent net loss) is computed here, from the daily
+  growth rates the kernel has written, in the same order of summation.
 * crash draws are the numpy engine's draws (the same ``PCG64(seed)`` table of
   :meth:`pondsim.operations.crash.CrashModel.streams`, row ``stream_of_member[j]``), so a
-  member crashes on the same day in both unless its uniform draw lies within ~1e-7 of
-  ``1 - exp(-h)`` (probability ~1e-7 per member-day).
+  member crashes on the same day, of the same cause, in both unless its uniform draw lies
+  within ~1e-6 relative of ``1 - exp(-h)`` or of a cause boundary (the starvation hazard
+  inherits the growth rate's ~1e-6 difference).
 
-Layout: the loop is over members outside (``numba.prange``: members are independent, and
-both cores share them), then days, then hours, so that one member's state stays in
-registers and its daily outputs are written in place. The pieces that a model change is
-most likely to touch are small jitted functions of their own: :func:`harvest_share` (the
-harvest rule of :func:`pondsim.operations.harvest.removal_fraction`),
-:func:`crash_hazard` (:meth:`pondsim.operations.crash.CrashModel.hazard`) and
-:func:`crash_outcome` (loss and salvage of a crash). Each has a test against its numpy
-counterpart on random inputs.
+Layout: members are cut into blocks of :data:`BLOCK`; the blocks are shared by the cores
+(``numba.prange``: members are independent, and each member's random draws come from its
+own stream, so the result does not depend on the number of threads or the chunking).
+Within a block the loop runs over days, then hours, then the block's members, whose
+independent steps the processor overlaps. Per-hour quantities that do not depend on the
+state (µmax·f_T, I0/Iopt, exp(−I0/Iopt), the logistic r) are tabulated per driver set in
+numpy first.
 
 Compiled functions are cached on disk (``cache=True``): the first call in a fresh checkout
 compiles for a few seconds, later processes load the machine code.
@@ -47,6 +44,7 @@ import math
 import numpy as np
 from numba import njit, prange
 
+from pondsim.operations.crash import STARVATION_LOSS_REF_PER_D
 from pondsim.operations.engine import (
     HOURS_PER_DAY,
     STATUS_GROWING,
@@ -57,6 +55,8 @@ from pondsim.operations.engine import (
     Drivers,
     Operation,
     check_closure,
+    crash_stress,
+    logistic_inverse_capacity,
 )
 from pondsim.operations.harvest import HarvestRules
 from pondsim.pond import kinetics
@@ -65,13 +65,12 @@ from pondsim.pond import kinetics
 #: and callables run on the numpy engine.
 COMPILED_LIGHT = {"steele": 0, "monod": 1}
 _FORM_SELF_SHADING, _FORM_LOGISTIC = 0, 1
-_LEDGER = ("inoculated", "grown", "respired", "removed", "lost")
+_LEDGER = ("inoculated", "grown", "respired", "removed", "salvaged", "lost")
 _JIT = dict(cache=True, error_model="numpy")
 
-
-#: Whether this kernel implements the numpy engine's current semantics (see the module
-#: docstring). False: every call runs on the numpy engine.
-PORTED = False
+#: Whether this kernel implements the numpy engine's current semantics. False: every
+#: call runs on the numpy engine (kept as a switch for the next change of the engine).
+PORTED = True
 
 
 def supports(drivers: Drivers) -> bool:
@@ -80,7 +79,7 @@ def supports(drivers: Drivers) -> bool:
     if not PORTED:
         return False
     if drivers.growth_form == "logistic":
-        return True
+        return isinstance(drivers.light_model, str)
     return drivers.growth_form == "self_shading" and isinstance(drivers.light_model, str) \
         and drivers.light_model in COMPILED_LIGHT
 
@@ -114,18 +113,39 @@ def harvest_share(code, fraction, every, trigger, residual, x, since, min_densit
 
 
 @njit(**_JIT)
-def crash_hazard(x, k_smooth, drop, base, stress, onset, scale):
-    """Daily crash hazard [d-1] of one member: scalar port of
-    :meth:`pondsim.operations.crash.CrashModel.hazard`."""
-    s_over = max(x / max(k_smooth, 1.0) - onset, 0.0) / (1.0 - onset)
-    s_drop = max(drop, 0.0) / scale
-    return base - stress * math.expm1(-s_over * s_drop)
+def floor_share(frac, x, floor):
+    """``(fraction, at_floor)``: scalar port of
+    :func:`pondsim.operations.harvest.cut_back_to_floor` (floor [g m-3], 0: none)."""
+    if floor <= 0.0:
+        return frac, False
+    allowed = 1.0 - floor / x if x > floor else 0.0
+    at_floor = (x < floor * (1.0 - 1e-9)) or (frac > allowed + 1e-12)
+    return min(frac, allowed), at_floor
+
+
+@njit(**_JIT)
+def cause_of_crash(u, h_bg, h_starve, h_heat, h_cold):
+    """``(hazard [d-1], cause)`` of one member-day: scalar port of
+    :func:`pondsim.operations.crash.assign_cause` for the four causes of
+    :data:`pondsim.operations.crash.CAUSES` (cause 0: no crash, else 1 + index)."""
+    total = h_bg + h_starve + h_heat + h_cold
+    p = -math.expm1(-total)
+    if not u < p:  # no crash (u >= 0, so a crash needs p > 0, hence total > 0)
+        return total, 0
+    v = u / p  # uniform on [0, 1) given the crash: picks the cause by cumulative shares
+    cum = h_bg
+    cause = 1 + (v >= cum / total)
+    cum += h_starve
+    cause += v >= cum / total
+    cum += h_heat
+    cause += v >= cum / total
+    return total, cause
 
 
 @njit(**_JIT)
 def crash_outcome(x, loss_fraction):
     """``(lost, salvaged)`` [g m-3] when a culture of density *x* crashes: the lost share
-    is gone, the rest is harvested (the numpy engine's crash step)."""
+    is gone, the rest is salvage (booked apart from harvest)."""
     lost = x * loss_fraction
     return lost, x - lost
 
@@ -140,22 +160,12 @@ def _absorbed(tau):
 
 
 @njit(inline="always", **_JIT)
-def _gross_rate(form, light, x, mu_t, a, exp_a, i0, param, tau_s, tau_z, r, inv_k):
-    """Specific gross growth rate [d-1] at density *x* within one hour."""
-    if form == _FORM_LOGISTIC:
-        return r * (1.0 - x * inv_k)
+def _monod_factor(x, i0, param, tau_s, tau_z):
+    """Monod depth mean ln[1 + I0 (1 - e^-tau)/(K + I0 e^-tau)] / tau [-]."""
     tau = max(tau_s * x + tau_z, 1e-12)
     absorbed = _absorbed(tau)
-    if light == 0:  # Steele (1962) depth mean: (e/tau) exp(-a) expm1(a (1 - e^-tau))
-        b = a * absorbed
-        if b > 0.05:
-            grow = math.exp(b) - 1.0
-        else:
-            grow = b * (1.0 + b * (0.5 + b * (1 / 6 + b * (1 / 24 + b / 120))))
-        return mu_t * (math.e * exp_a * grow / tau)
-    # Monod depth mean: ln[1 + I0 (1 - e^-tau)/(K + I0 e^-tau)] / tau
     y = i0 * absorbed / (param + i0 * (1.0 - absorbed))
-    return mu_t * ((math.log(1.0 + y) if y > 0.05 else math.log1p(y)) / tau)
+    return (math.log(1.0 + y) if y > 0.05 else math.log1p(y)) / tau
 
 
 @njit(inline="always", **_JIT)
@@ -210,18 +220,19 @@ BLOCK = 32
 
 
 @njit(parallel=True, **_JIT)
-def _run(par, ftemp, maint, cap, rtab, mu, param, tau_s, tau_z, form, light, dark,
-         set_of, code, fraction, every, trigger, residual, period_of_day,
-         op_int, op_float, crash_on, k_smooth, k_fall, table, stream_of, crash_par,
-         o_density, o_removed, o_frac, o_growth, o_lost, o_crashed, o_hazard, o_status,
-         o_sampled, o_grown, o_respired, ledger):
+def _run(hour_a, hour_scale, par, maint, inv_k, param, tau_s, tau_z, form, light, dark,
+         set_of, start_day, inoculum, code, fraction, every, trigger, residual,
+         period_of_day, op_int, op_float, crash_on, w_hazard, crash_par, window, table,
+         stream_of, o_density, o_removed, o_frac, o_growth, o_lost, o_salvaged, o_crashed,
+         o_cause, o_hazard, o_status, o_sampled, o_at_floor, o_grown, o_respired, ledger):
     n = set_of.shape[0]
     n_days = o_density.shape[1]
-    start_day, restart_days, harvest_hour, sample_hour = op_int[0], op_int[1], op_int[2], \
-        op_int[3]
-    inoculum, max_fraction, min_density = op_float[0], op_float[1], op_float[2]
+    restart_days, harvest_hour, sample_hour = op_int[0], op_int[1], op_int[2]
+    max_fraction, min_density, floor = op_float[0], op_float[1], op_float[2]
+    c_starve, loss_fraction = crash_par[0], crash_par[1]
     per_member_period = period_of_day.shape[0] > 1
     steele = form == _FORM_SELF_SHADING and light == 0
+    monod = form == _FORM_SELF_SHADING and light == 1
     h6 = STEP_D / 6.0
     n_blocks = (n + BLOCK - 1) // BLOCK
     for blk in prange(n_blocks):
@@ -231,22 +242,22 @@ def _run(par, ftemp, maint, cap, rtab, mu, param, tau_s, tau_z, form, light, dar
         status = np.full(nb, STATUS_NOT_STARTED, dtype=np.int64)
         restart_on = np.full(nb, -1, dtype=np.int64)
         since = np.zeros(nb, dtype=np.int64)
+        age = np.zeros(nb, dtype=np.int64)
         rate_sum = np.zeros(nb)
-        inv_k = np.zeros(nb)
-        tot = np.zeros((nb, 5))  # inoculated, grown, respired, removed, lost
+        # inoculated, grown, respired, removed, salvaged, lost (the order of _LEDGER)
+        tot = np.zeros((nb, 6))
         grown_before = np.zeros(nb)
         respired_before = np.zeros(nb)
         for day in range(n_days):
             for b in range(nb):
-                if (status[b] == STATUS_NOT_STARTED and day >= start_day) or \
+                j = lo + b
+                if (status[b] == STATUS_NOT_STARTED and day >= start_day[j]) or \
                         (status[b] == STATUS_RESTARTING and restart_on[b] <= day):
-                    x[b] = inoculum
-                    tot[b, 0] += inoculum
+                    x[b] = inoculum[j]
+                    tot[b, 0] += inoculum[j]
                     status[b] = STATUS_GROWING
                     since[b] = 0
-                if form == _FORM_LOGISTIC:
-                    k_day = cap[set_of[lo + b], day]
-                    inv_k[b] = 1.0 / max(k_day, 1e-300) if k_day > 0 else np.inf
+                    age[b] = 0
                 rate_sum[b] = 0.0
             for hod in range(HOURS_PER_DAY):
                 hour = day * HOURS_PER_DAY + hod
@@ -257,8 +268,11 @@ def _run(par, ftemp, maint, cap, rtab, mu, param, tau_s, tau_z, form, light, dar
                         frac, scheduled = harvest_share(
                             code[j, p], fraction[j, p], every[j, p], trigger[j, p],
                             residual[j, p], x[b], since[b], min_density, max_fraction)
+                        frac, at_floor = floor_share(frac, x[b], floor)
                         if status[b] != STATUS_GROWING:
                             frac = 0.0
+                            at_floor = False
+                        o_at_floor[j, day] = at_floor
                         taken = frac * x[b]
                         x[b] = x[b] - taken
                         tot[b, 3] += taken
@@ -280,15 +294,11 @@ def _run(par, ftemp, maint, cap, rtab, mu, param, tau_s, tau_z, form, light, dar
                 for b in range(nb):
                     s = set_of[lo + b]
                     m = maint[s, hour]
-                    i0 = par[s, hour]
-                    mu_t = mu[s] * ftemp[s, hour]
-                    a = i0 / param[s]
-                    exp_a = math.exp(-a)
-                    r = rtab[s, hour] if form == _FORM_LOGISTIC else 0.0
+                    scale = hour_scale[s, hour]
                     xb = x[b]
+                    ts, tz = tau_s[s], tau_z[s]
                     if steele:
-                        scale = mu_t * exp_a
-                        ts, tz = tau_s[s], tau_z[s]
+                        a = hour_a[s, hour]
                         f1, tau1, e1, b1, e_b1 = _steele_first(xb, a, ts, tz)
                         g1 = scale * f1
                         x2 = xb + (0.5 * STEP_D) * ((g1 - m) * xb)
@@ -297,24 +307,34 @@ def _run(par, ftemp, maint, cap, rtab, mu, param, tau_s, tau_z, form, light, dar
                         g3 = scale * _steele_next(x3, a, ts, tz, tau1, e1, b1, e_b1)
                         x4 = xb + STEP_D * ((g3 - m) * x3)
                         g4 = scale * _steele_next(x4, a, ts, tz, tau1, e1, b1, e_b1)
-                    else:
-                        g1 = _gross_rate(form, light, xb, mu_t, a, exp_a, i0, param[s],
-                                         tau_s[s], tau_z[s], r, inv_k[b])
+                    elif monod:
+                        i0, k_i = par[s, hour], param[s]
+                        g1 = scale * _monod_factor(xb, i0, k_i, ts, tz)
                         x2 = xb + (0.5 * STEP_D) * ((g1 - m) * xb)
-                        g2 = _gross_rate(form, light, x2, mu_t, a, exp_a, i0, param[s],
-                                         tau_s[s], tau_z[s], r, inv_k[b])
+                        g2 = scale * _monod_factor(x2, i0, k_i, ts, tz)
                         x3 = xb + (0.5 * STEP_D) * ((g2 - m) * x2)
-                        g3 = _gross_rate(form, light, x3, mu_t, a, exp_a, i0, param[s],
-                                         tau_s[s], tau_z[s], r, inv_k[b])
+                        g3 = scale * _monod_factor(x3, i0, k_i, ts, tz)
                         x4 = xb + STEP_D * ((g3 - m) * x3)
-                        g4 = _gross_rate(form, light, x4, mu_t, a, exp_a, i0, param[s],
-                                         tau_s[s], tau_z[s], r, inv_k[b])
+                        g4 = scale * _monod_factor(x4, i0, k_i, ts, tz)
+                    else:  # logistic: r (1 - X/K_g), scale = r of the hour
+                        ik = inv_k[s, day]
+                        g1 = scale * (1.0 - xb * ik)
+                        x2 = xb + (0.5 * STEP_D) * ((g1 - m) * xb)
+                        g2 = scale * (1.0 - x2 * ik)
+                        x3 = xb + (0.5 * STEP_D) * ((g2 - m) * x2)
+                        g3 = scale * (1.0 - x3 * ik)
+                        x4 = xb + STEP_D * ((g3 - m) * x3)
+                        g4 = scale * (1.0 - x4 * ik)
                     grown = h6 * (g1 * xb + 2.0 * (g2 * x2 + g3 * x3) + g4 * x4)
                     resp = (h6 * m) * (xb + 2.0 * (x2 + x3) + x4)
                     rate_sum[b] += g1 - m
                     x[b] = xb + grown - resp
-                    tot[b, 1] += grown
-                    tot[b, 2] += resp
+                    # a negative gross step (logistic die-back) is booked as respired
+                    if grown >= 0.0:
+                        tot[b, 1] += grown
+                        tot[b, 2] += resp
+                    else:
+                        tot[b, 2] += resp - grown
             for b in range(nb):
                 j = lo + b
                 s = set_of[j]
@@ -326,38 +346,80 @@ def _run(par, ftemp, maint, cap, rtab, mu, param, tau_s, tau_z, form, light, dar
                 grown_before[b] = tot[b, 1]
                 respired_before[b] = tot[b, 2]
                 since[b] += 1
-                if crash_on:
-                    h = 0.0
-                    if growing:
-                        h = crash_hazard(x[b], k_smooth[s, day], k_fall[s, day],
-                                         crash_par[0], crash_par[1], crash_par[2],
-                                         crash_par[3])
+                if crash_on and growing:
+                    # starvation: mean net rate over the last min(w, age + 1) days
+                    first = max(day - window + 1, day - age[b], 0)
+                    acc = 0.0
+                    for d in range(first, day + 1):
+                        acc += o_growth[j, d]
+                    loss = max(-(acc / min(age[b] + 1, window)), 0.0)
+                    h, cause = cause_of_crash(
+                        table[stream_of[j], day], w_hazard[0, s, day],
+                        c_starve * loss / STARVATION_LOSS_REF_PER_D,
+                        w_hazard[1, s, day], w_hazard[2, s, day])
                     o_hazard[j, day] = h
-                    if growing and table[stream_of[j], day] < -math.expm1(-h):
-                        lost, salvage = crash_outcome(x[b], crash_par[4])
-                        tot[b, 4] += lost
-                        tot[b, 3] += salvage
+                    if cause > 0:
+                        lost, salvage = crash_outcome(x[b], loss_fraction)
+                        tot[b, 5] += lost
+                        tot[b, 4] += salvage
                         o_lost[j, day] = lost
-                        o_removed[j, day] += salvage
+                        o_salvaged[j, day] = salvage
                         o_crashed[j, day] = True
+                        o_cause[j, day] = cause
                         x[b] = 0.0
                         status[b] = STATUS_RESTARTING
                         restart_on[b] = day + 1 + restart_days
+                age[b] += 1
                 o_density[j, day] = x[b]
                 o_status[j, day] = status[b]
         for b in range(nb):
-            for k in range(5):
+            for k in range(6):
                 ledger[lo + b, k] = tot[b, k]
-            ledger[lo + b, 5] = x[b]
+            ledger[lo + b, 6] = x[b]
 
 
 # --------------------------------------------------------------------------------------
 # Python entry
 # --------------------------------------------------------------------------------------
-def _per_member(a: np.ndarray, n: int) -> np.ndarray:
-    """An (n, s) rule table, broadcast to n rows without copying when it has one row."""
-    a = np.asarray(a)
-    return np.broadcast_to(a, (n, a.shape[1])) if a.shape[0] == 1 else a
+def _per_member(a, n: int, dtype) -> np.ndarray:
+    """A scalar or (n,) array as a contiguous (n,) array."""
+    return np.ascontiguousarray(np.broadcast_to(np.asarray(a, dtype=dtype), (n,)))
+
+
+def hour_tables(drivers: Drivers):
+    """Per driver set and hour, what the kernel's inner loop needs that does not depend
+    on the state: ``(a, scale, inv_k)``.
+
+    a = I0/Iopt [-]; scale [d-1] = µmax·f_T·exp(−a) (Steele), µmax·f_T (Monod), or the
+    logistic r of the hour, 0 on days without growth (logistic); inv_k [m3 g-1] (f, n_days)
+    = 1/K_g of the logistic form (:func:`pondsim.operations.engine.logistic_inverse_capacity`
+    of the day means of r and m, as the numpy engine takes them).
+    """
+    f64 = np.float64
+    par = np.asarray(drivers.par, f64)
+    mu = np.asarray(drivers.mu_max, f64)[:, None]
+    param = np.asarray(drivers.light_param, f64)[:, None]
+    mu_t = mu * np.asarray(drivers.temp_factor, f64)
+    n_days = drivers.n_days
+    if drivers.growth_form == "logistic":
+        r = np.asarray(kinetics.specific_growth_logistic_r(
+            par, drivers.temp_factor, mu_max=mu, model=drivers.light_model, param=param), f64)
+        r = np.broadcast_to(r, par.shape)
+        per_day = (drivers.n_sets, n_days, HOURS_PER_DAY)
+        r3 = r[:, :n_days * HOURS_PER_DAY].reshape(per_day)
+        m3 = np.asarray(drivers.maintenance, f64)[:, :n_days * HOURS_PER_DAY].reshape(per_day)
+        r_sum, m_sum = r3[..., 0].copy(), m3[..., 0].copy()
+        for h in range(1, HOURS_PER_DAY):  # hour by hour, the numpy engine's order
+            r_sum += r3[..., h]
+            m_sum += m3[..., h]
+        grows, inv_k = logistic_inverse_capacity(drivers.capacity, r_sum / HOURS_PER_DAY,
+                                                 m_sum / HOURS_PER_DAY)
+        scale = np.where(np.repeat(grows, HOURS_PER_DAY, axis=1), r, 0.0)
+        return np.zeros((1, 1)), np.ascontiguousarray(scale, f64), \
+            np.ascontiguousarray(inv_k, f64)
+    a = par / param
+    scale = mu_t * np.exp(-a) if drivers.light_model == "steele" else mu_t
+    return np.ascontiguousarray(a), np.ascontiguousarray(scale, f64), np.zeros((1, 1))
 
 
 def integrate_compiled(drivers: Drivers, rules: HarvestRules, operation: Operation, *,
@@ -368,7 +430,8 @@ def integrate_compiled(drivers: Drivers, rules: HarvestRules, operation: Operati
     result; see the module docstring for how the two differ).
 
     Members run in chunks of *chunk* (both cores share each chunk); ``progress`` is
-    called with the number of days' worth of work done after each chunk.
+    called with the number of days' worth of work done after each chunk. The result does
+    not depend on *chunk* or on the number of threads.
     """
     if not supports(drivers):
         raise ValueError(f"the compiled engine has no depth mean for light model "
@@ -385,24 +448,23 @@ def integrate_compiled(drivers: Drivers, rules: HarvestRules, operation: Operati
     f64 = np.float64
     par = np.ascontiguousarray(drivers.par, f64)
     logistic = drivers.growth_form == "logistic"
-    rtab = np.ascontiguousarray(kinetics.specific_growth_logistic_r(
-        par, drivers.temp_factor, mu_max=np.asarray(drivers.mu_max)[:, None],
-        model=drivers.light_model, param=np.asarray(drivers.light_param)[:, None]),
-        f64) if logistic else np.zeros((1, 1))
+    hour_a, hour_scale, inv_k = hour_tables(drivers)
     dark = ~(par > 0).any(axis=0)
     stream = np.arange(n, dtype=np.intp) if stream_of_member is None else \
         np.ascontiguousarray(stream_of_member, dtype=np.intp)
     if crash is not None:
-        smooth = crash.smoothed(drivers.capacity)
-        k_smooth = np.ascontiguousarray(smooth, f64)
-        k_fall = np.ascontiguousarray(crash.drop_index(smooth), f64)
+        stress = crash_stress(crash, drivers)
+        parts = crash.cause_hazards(stress.temp_mean_c, stress.heat_hours,
+                                    stress.cold_shock_k, 0.0)
+        # background, heat, cold per set and day (starvation is the member's own)
+        w_hazard = np.ascontiguousarray(parts[[0, 2, 3]], f64)
         n_streams = int(stream.max()) + 1 if n else 0
         table = crash.streams(seed, np.arange(n_streams))  # row i = stream i's draws
-        crash_par = np.array([crash.base_hazard_per_d, crash.stress_hazard_per_d,
-                              crash.overshoot_onset, crash.drop_scale, crash.loss_fraction])
+        crash_par = np.array([crash.starvation_hazard_per_d, crash.loss_fraction])
+        window = int(crash.window_days)
     else:
-        k_smooth = k_fall = table = np.zeros((1, 1))
-        crash_par = np.zeros(5)
+        w_hazard, table, crash_par, window = np.zeros((3, 1, 1)), np.zeros((1, 1)), \
+            np.zeros(2), 1
     out = Daily(
         density=np.zeros((n, n_days)), removed=np.zeros((n, n_days)),
         harvest_fraction=np.zeros((n, n_days)), growth_rate=np.zeros((n, n_days)),
@@ -410,44 +472,48 @@ def integrate_compiled(drivers: Drivers, rules: HarvestRules, operation: Operati
         hazard=np.zeros((n, n_days), dtype=np.float32),
         status=np.zeros((n, n_days), dtype=np.int8), ledger={},
         sampled=None if op.sample_hour is None else np.zeros((n, n_days)),
+        at_floor=np.zeros((n, n_days), dtype=bool),
+        salvaged=np.zeros((n, n_days)), cause=np.zeros((n, n_days), dtype=np.int8),
         grown=np.zeros((n, n_days)), respired=np.zeros((n, n_days)),
     )
     sampled = out.sampled if out.sampled is not None else np.zeros((n, 1))
-    ledger = np.zeros((n, 6))
-    op_int = np.array([op.start_day, op.restart_days, op.harvest_hour,
+    ledger = np.zeros((n, 7))
+    op_int = np.array([op.restart_days, op.harvest_hour,
                        -1 if op.sample_hour is None else op.sample_hour], dtype=np.int64)
-    op_float = np.array([op.inoculum_g_m3, op.max_fraction, op.min_density_g_m3])
-    tables = [_per_member(t, n) for t in (rules.code, rules.fraction, rules.every_days,
-                                          rules.trigger, rules.residual)]
-    code, fraction, every, trigger, residual = \
-        tables[0].astype(np.int64), tables[1].astype(f64), tables[2].astype(np.int64), \
-        tables[3].astype(f64), tables[4].astype(f64)
+    op_float = np.array([op.max_fraction, op.min_density_g_m3, op.floor_g_m3], f64)
+    start_day = _per_member(op.start_day, n, np.int64)
+    inoculum = _per_member(op.inoculum_g_m3, n, f64)
+
+    def rows_of(t, dtype):
+        t = np.asarray(t, dtype)
+        return (lambda r: np.broadcast_to(t, (r.stop - r.start, t.shape[1]))) \
+            if t.shape[0] == 1 else (lambda r: np.ascontiguousarray(t[r]))
+
+    tables = [rows_of(t, d) for t, d in ((rules.code, np.int64), (rules.fraction, f64),
+                                         (rules.every_days, np.int64),
+                                         (rules.trigger, f64), (rules.residual, f64))]
     period = np.asarray(rules.period_of_day, dtype=np.int64)
-    common = (np.ascontiguousarray(drivers.temp_factor, f64),
-              np.ascontiguousarray(drivers.maintenance, f64),
-              np.ascontiguousarray(drivers.capacity, f64), rtab,
-              np.asarray(drivers.mu_max, f64), np.asarray(drivers.light_param, f64),
+    common = (hour_a, hour_scale, par, np.ascontiguousarray(drivers.maintenance, f64),
+              inv_k, np.asarray(drivers.light_param, f64),
               np.asarray(drivers.k_biomass, f64) * drivers.depth_m,
               np.asarray(drivers.k_background, f64) * drivers.depth_m,
               _FORM_LOGISTIC if logistic else _FORM_SELF_SHADING,
               COMPILED_LIGHT.get(drivers.light_model, 0) if not logistic else 0, dark)
-    for lo in range(0, n, max(int(chunk), 1)):
-        hi = min(n, lo + max(int(chunk), 1))
-        rows = slice(lo, hi)
-        _run(par, *common, set_of_member[rows],
-             np.ascontiguousarray(code[rows]), np.ascontiguousarray(fraction[rows]),
-             np.ascontiguousarray(every[rows]), np.ascontiguousarray(trigger[rows]),
-             np.ascontiguousarray(residual[rows]),
+    step = max(int(chunk), 1)
+    for lo in range(0, n, step):
+        rows = slice(lo, min(n, lo + step))
+        _run(*common, set_of_member[rows], start_day[rows], inoculum[rows],
+             *(t(rows) for t in tables),
              period[rows] if period.shape[0] > 1 else period,
-             op_int, op_float, crash is not None, k_smooth, k_fall, table, stream[rows],
-             crash_par, out.density[rows], out.removed[rows], out.harvest_fraction[rows],
-             out.growth_rate[rows], out.lost[rows], out.crashed[rows], out.hazard[rows],
-             out.status[rows], sampled[rows], out.grown[rows], out.respired[rows],
-             ledger[rows])
+             op_int, op_float, crash is not None, w_hazard, crash_par, window, table,
+             stream[rows], out.density[rows], out.removed[rows], out.harvest_fraction[rows],
+             out.growth_rate[rows], out.lost[rows], out.salvaged[rows], out.crashed[rows],
+             out.cause[rows], out.hazard[rows], out.status[rows], sampled[rows],
+             out.at_floor[rows], out.grown[rows], out.respired[rows], ledger[rows])
         if progress is not None:
-            progress(int(round(n_days * hi / n)))
+            progress(int(round(n_days * rows.stop / n)))
     out.ledger.update({k: ledger[:, i].copy() for i, k in enumerate(_LEDGER)})
-    out.ledger["final"] = ledger[:, 5].copy()
+    out.ledger["final"] = ledger[:, 6].copy()
     if check_ledger:
         check_closure(out.ledger)
     return out
