@@ -267,3 +267,46 @@ def test_unsupported_light_model_runs_on_numpy():
     np.testing.assert_array_equal(a.density, b.density)
     with pytest.raises(ValueError, match="unknown engine"):
         engine.integrate(d, rules(2, 5), OPERATION, engine="fortran")
+
+
+# --------------------------------------------------------------------------------------
+# Through simulate: the results Dataset of the demo on both engines
+# --------------------------------------------------------------------------------------
+@pytest.mark.parametrize("sellable", [False, True])
+def test_demo_dataset_is_the_same_on_both_engines(sellable):
+    """Every variable of the demo's results Dataset (harvest with and without sellable
+    salvage, crashes by cause, at-floor and washout days) on both engines; crash
+    hazards raised so that every policy crashes."""
+    from pathlib import Path
+
+    from pondsim.operations.simulate import simulate
+    from pondsim.scenario import load_scenario
+
+    demo = load_scenario(Path(__file__).resolve().parents[1] / "scenarios"
+                         / "kestrel_flats.toml")
+    crash = dataclasses.replace(demo.crash, salvage_sellable=sellable,
+                                background_per_d=0.01, starvation_hazard_per_d=0.2)
+    out = {}
+    for name in ("numpy", "compiled"):
+        sc = dataclasses.replace(demo, crash=crash,
+                                 run=dataclasses.replace(demo.run, engine=name))
+        out[name] = simulate(sc, members=3, progress=False)
+    a, b = out["numpy"], out["compiled"]
+    assert set(a.data_vars) == set(b.data_vars)
+    for var in a.data_vars:
+        x, y = a[var].values, b[var].values
+        if x.dtype.kind in "biu":
+            np.testing.assert_array_equal(y, x, err_msg=var)
+        elif x.dtype.kind == "f":
+            scale = float(np.nanmax(np.abs(x), initial=0.0))
+            np.testing.assert_allclose(y, x, rtol=RTOL, atol=ATOL + RTOL * scale,
+                                       err_msg=var)
+    assert int(b["crashed"].sum()) > 10 and float(b["salvaged"].sum()) > 0
+    # salvage is product exactly when sellable: on crash days without a harvest the day's
+    # product is the recovered salvage, or nothing
+    eff = demo.harvest.recovery_efficiency
+    only_crash = (b["crashed"] == 1) & (b["harvest_fraction"] == 0)
+    assert bool(only_crash.any())
+    expected = eff * b["salvaged"].where(only_crash) * (1.0 if sellable else 0.0)
+    np.testing.assert_allclose(b["harvested"].where(only_crash).values, expected.values,
+                               rtol=1e-12, atol=1e-12)

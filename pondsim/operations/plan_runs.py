@@ -52,7 +52,7 @@ class Ensemble:
     pond_count: int = 1
     washout_days: int = 7
     dewatering_cost_kg_per_m3: float = 0.0
-    engine: str = "numpy"  # integrator: see pondsim.operations.engine.integrate
+    engine: str = "compiled"  # integrator: see pondsim.operations.engine.integrate
 
 
 def ensemble_of(scenario, drivers: Drivers, members: int, seed: int) -> Ensemble:

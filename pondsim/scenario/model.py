@@ -186,7 +186,7 @@ class Run:
     members: int
     seed: int
     progress: bool
-    engine: str = "numpy"
+    engine: str = "compiled"
 
 
 @dataclass(frozen=True)

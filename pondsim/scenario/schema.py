@@ -249,11 +249,11 @@ SCHEMA: dict[str, dict[str, Key]] = {
         "seed": Key("int", 12345, "Seed of the random streams (same seed, same result).",
                     "", 0, 2**63 - 1),
         "progress": Key("bool", True, "Show progress bars on long runs."),
-        "engine": Key("str", "numpy", "Integrator: 'numpy' (the reference) or 'compiled' "
-                      "(numba; same model and random streams, results within ~1e-6 "
-                      "relative, many times faster for small ensembles). Until the "
-                      "compiled kernel is ported to the current crash and harvest-floor "
-                      "rules, 'compiled' runs the numpy engine.",
+        "engine": Key("str", "compiled", "Integrator: 'compiled' (numba, the default; "
+                      "light models without a compiled depth mean run on numpy) or 'numpy' "
+                      "(the reference). Same model and random streams; results agree to "
+                      "~1e-6 relative (the numpy engine takes one exponential in single "
+                      "precision).",
                       choices=("numpy", "compiled")),
     },
 }
