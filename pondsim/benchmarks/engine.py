@@ -5,12 +5,14 @@ Three parts, all measured in ONE run so that ratios compare like with like on a 
 whose load changes from minute to minute:
 
 1. **Stages** of one weather year: reading the weather, light + pond water temperature,
-   the daily carrying-capacity (K) solve, the engine (numpy reference and compiled), and
+   the daily carrying-capacity (K) solve, the engine for one member and the demo's whole
+   ``simulate`` (its policies x ``run.members``), numpy and compiled side by side, and
    writing a run's results (netCDF + CSV).
 2. **Engine** at each ensemble size: one year of hourly steps with a fixed-fraction
    harvest whose fraction varies over the members and the scenario's crash model, on the
-   numpy engine and the compiled one (member-hour steps per second, ratio), and, with
-   ``--memory``, the peak memory of each (tracemalloc, a second run). Then the annual
+   numpy engine, the compiled one on one core and on every core (wall and CPU time,
+   member-hour steps per second, ratios against numpy), and, with ``--memory``, the peak
+   memory of each (tracemalloc, a second run). Then the annual
    harvest of a few members against a per-member ``scipy.integrate.solve_ivp`` reference
    (RK45, rtol 1e-8, integrated one hour at a time) and the ledger closure of each
    engine.
@@ -21,7 +23,9 @@ whose load changes from minute to minute:
    before a change: ``git archive <commit> | tar -x -C DIR``). Wall time and peak
    resident memory of each.
 
-This is a measurement script, not a test: numbers vary from run to run.
+This is a measurement script, not a test: numbers vary from run to run. On a machine
+shared with other work, wall times follow the load; the CPU times beside them (all
+threads of this process) are steadier, and the load average is printed before and after.
 """
 
 from __future__ import annotations
@@ -35,8 +39,10 @@ import time
 import tracemalloc
 from pathlib import Path
 
+import numba
 import numpy as np
 
+from pondsim.operations import kernel
 from pondsim.operations.engine import HOURS_PER_DAY, check_closure, integrate
 from pondsim.operations.harvest import RULE_CODES, HarvestRules
 from pondsim.operations.simulate import (
@@ -98,8 +104,12 @@ def solve_ivp_reference(drivers, operation, fraction: float) -> float:
         day, hod = divmod(hour, HOURS_PER_DAY)
         if hod == 0 and day == operation.start_day:
             x = operation.inoculum_g_m3
-        if hod == operation.harvest_hour and day > operation.start_day:
-            take = min(fraction, operation.max_fraction) * x
+        if hod == operation.harvest_hour and day > operation.start_day \
+                and x >= operation.min_density_g_m3:
+            share = min(fraction, operation.max_fraction)
+            if operation.floor_g_m3 > 0:  # never below the viable floor
+                share = min(share, max(0.0, 1.0 - operation.floor_g_m3 / x))
+            take = share * x
             removed += take
             x -= take
         if x <= 0:
@@ -125,6 +135,18 @@ def _timed(fn, repeat: int = 1):
     return best, out
 
 
+def _timed_cpu(fn, repeat: int = 1):
+    """Best wall time [s] and best CPU time [s] (every thread of the process) of *repeat*
+    calls."""
+    wall, cpu = np.inf, np.inf
+    for _ in range(repeat):
+        t, c = time.perf_counter(), time.process_time()
+        fn()
+        wall = min(wall, time.perf_counter() - t)
+        cpu = min(cpu, time.process_time() - c)
+    return wall, cpu
+
+
 def _peak_bytes(fn) -> int:
     tracemalloc.start()
     try:
@@ -135,7 +157,10 @@ def _peak_bytes(fn) -> int:
 
 
 def stages(scenario, repeat: int = 3) -> dict:
-    """Wall time [s] of each stage of one weather year (best of *repeat*)."""
+    """Wall time [s] of each stage of one weather year (best of *repeat*): a number for
+    the stages both engines share, ``{"numpy": s, "compiled": s}`` for the others."""
+    import dataclasses
+
     from pondsim.operations.simulate import simulate
     from pondsim.results.files import save, write_csv
     from pondsim.results.tables import policy_summary
@@ -148,11 +173,19 @@ def stages(scenario, repeat: int = 3) -> dict:
     out["K solve"], drivers = _timed(lambda: build_drivers(hourly, scenario), repeat)
     op, crash = operation_of(scenario), crash_model_of(scenario)
     rules = _rules(1, drivers.n_days)
+    n_run = (len(scenario.policies) + len(scenario.plans)) * scenario.run.members
+    one, run = {}, {}
     for engine in ("numpy", "compiled"):
         integrate(drivers, rules, op, crash=crash, seed=1, engine=engine)  # warm (load)
-        out[f"engine, 1 member ({engine})"], _ = _timed(
+        one[engine], _ = _timed(
             lambda e=engine: integrate(drivers, rules, op, crash=crash, seed=1, engine=e),
             repeat)
+        sc = dataclasses.replace(scenario, run=dataclasses.replace(scenario.run,
+                                                                   engine=engine))
+        run[engine], _ = _timed(lambda sc=sc: simulate(sc, forcing=forcing, progress=False),
+                                repeat)
+    out["engine, 1 member"] = one
+    out[f"simulate ({n_run} members, physics cached)"] = run
     ds = simulate(scenario, members=1, forcing=forcing, progress=False)
     with tempfile.TemporaryDirectory() as tmp:
         def write():
@@ -162,19 +195,35 @@ def stages(scenario, repeat: int = 3) -> dict:
     return out
 
 
-def engines(drivers, op, crash, sizes, memory: bool = False) -> dict:
-    """Numpy and compiled engine at each size: wall [s], member-h/s, peak bytes."""
+def engines(drivers, op, crash, sizes, memory: bool = False, skip_numpy_above=None) -> dict:
+    """Numpy engine, compiled on one core and compiled on every core at each size: wall
+    and CPU [s], member-h/s, peak bytes (numpy skipped above *skip_numpy_above*)."""
     report = {}
+    cores = numba.get_num_threads()
+    warm = _rules(2 * kernel.BLOCK, drivers.n_days)  # load both compiled builds first
+    for threads in (1, cores):
+        numba.set_num_threads(threads)
+        integrate(drivers, warm, op, crash=crash, seed=1, engine="compiled")
+    numba.set_num_threads(cores)
     for n in sizes:
         rules = _rules(n, drivers.n_days)
         row = {}
-        for engine in ("numpy", "compiled"):
+        for variant, engine, threads in (("numpy", "numpy", cores),
+                                         ("compiled, 1 core", "compiled", 1),
+                                         (f"compiled, {cores} cores", "compiled", cores)):
+            if engine == "numpy" and skip_numpy_above and n > skip_numpy_above:
+                continue
             def call(e=engine, rules=rules):
                 return integrate(drivers, rules, op, crash=crash, seed=1, engine=e)
-            wall, _ = _timed(call)
-            row[engine] = {"wall_s": wall, "steps_per_s": n * drivers.n_hours / wall}
-            if memory:
-                row[engine]["peak_bytes"] = _peak_bytes(call)
+            numba.set_num_threads(threads)
+            try:
+                wall, cpu = _timed_cpu(call)
+                row[variant] = {"wall_s": wall, "cpu_s": cpu,
+                                "steps_per_s": n * drivers.n_hours / wall}
+                if memory:
+                    row[variant]["peak_bytes"] = _peak_bytes(call)
+            finally:
+                numba.set_num_threads(cores)
         report[n] = row
     return report
 
@@ -191,7 +240,7 @@ def ivp_check(drivers, op, n_members: int) -> dict:
         daily = integrate(drivers, rules, op, engine=engine, check_ledger=False)
         led = daily.ledger
         balance = (led["inoculated"] + led["grown"] - led["respired"] - led["removed"]
-                   - led["lost"] - led["final"])
+                   - led["salvaged"] - led["lost"] - led["final"])
         scale = led["inoculated"] + np.abs(led["grown"]) + led["respired"]
         check_closure(led)
         out[engine] = {
@@ -252,7 +301,7 @@ def study_commands(scenario_path: Path, baseline: Path | None = None,
 
 def run(scenario_path=DEMO, sizes=(1, 100, 10_000), ivp_members: int = 3, *,
         studies: bool = False, baseline: Path | None = None, memory: bool = False,
-        repeat: int = 3) -> dict:
+        repeat: int = 3, skip_numpy_above: int | None = None) -> dict:
     scenario_path = Path(scenario_path)
     scenario = load_scenario(scenario_path)
     report = {"stages": stages(scenario, repeat)}
@@ -262,30 +311,39 @@ def run(scenario_path=DEMO, sizes=(1, 100, 10_000), ivp_members: int = 3, *,
     print(f"scenario: {scenario_path}  ({drivers.n_days} days, growth form "
           f"{drivers.growth_form}, light model {drivers.light_model}); "
           f"load average {os.getloadavg()[0]:.1f} on {os.cpu_count()} cores\n")
-    print(f"stages of one weather year (best of {repeat}):")
+    print(f"stages of one weather year (best of {repeat}; wall ms):")
+    print(f"  {'stage':<40} {'numpy':>10} {'compiled':>10} {'ratio':>7}")
     for name, s in report["stages"].items():
-        print(f"  {name:<32} {s * 1e3:>9.1f} ms")
+        if isinstance(s, dict):
+            print(f"  {name:<40} {s['numpy'] * 1e3:>10.1f} {s['compiled'] * 1e3:>10.1f} "
+                  f"{s['numpy'] / s['compiled']:>6.1f}x")
+        else:
+            print(f"  {name:<40} {s * 1e3:>10.1f} {'(same)':>10}")
 
-    report["engine"] = engines(drivers, op, crash, sizes, memory)
-    print("\nengine, one year, fixed-fraction harvest, crash model on:")
-    head = f"{'members':>8} {'numpy s':>9} {'compiled s':>11} {'ratio':>7} " \
-           f"{'numpy member-h/s':>17} {'compiled member-h/s':>20}"
-    if memory:
-        head += f" {'numpy B/member':>15} {'compiled B/member':>18}"
-    print(head)
+    report["engine"] = engines(drivers, op, crash, sizes, memory, skip_numpy_above)
+    print("\nengine, one year, fixed-fraction harvest, crash model on "
+          "(wall s / CPU s of all threads; ratio = numpy wall / compiled wall):")
+    variants = list(next(iter(report["engine"].values())))
+    print(f"{'members':>8}" + "".join(f"{v:>26}" for v in variants)
+          + "".join(f"{'ratio ' + v.split(', ')[1]:>14}" for v in variants[1:])
+          + f"{'best member-h/s':>17}")
     for n, row in report["engine"].items():
-        a, b = row["numpy"], row["compiled"]
-        line = (f"{n:>8} {a['wall_s']:>9.3f} {b['wall_s']:>11.4f} "
-                f"{a['wall_s'] / b['wall_s']:>6.1f}x {a['steps_per_s']:>17.3g} "
-                f"{b['steps_per_s']:>20.3g}")
+        cells = "".join(f"{row[v]['wall_s']:>15.4f} / {row[v]['cpu_s']:>8.3f}"
+                        if v in row else f"{'-':>26}" for v in variants)
+        ratios = "".join(f"{row['numpy']['wall_s'] / row[v]['wall_s']:>13.1f}x"
+                         if "numpy" in row else f"{'-':>14}" for v in variants[1:])
+        best = max(r["steps_per_s"] for r in row.values())
+        line = f"{n:>8}{cells}{ratios}{best:>17.3g}"
         if memory:
-            line += f" {a['peak_bytes'] / n:>15,.0f} {b['peak_bytes'] / n:>18,.0f}"
+            line += "".join(f" {row[v]['peak_bytes'] / n:>12,.0f} B/member" for v in row)
         print(line)
+    print(f"load average now {os.getloadavg()[0]:.1f}")
 
     if ivp_members:
         chk = ivp_check(drivers, op, ivp_members)
         report["ivp"] = chk
-        best = max(r["compiled"]["steps_per_s"] for r in report["engine"].values())
+        best = max(r["steps_per_s"] for row in report["engine"].values()
+                   for v, r in row.items() if v != "numpy")
         print(f"\nsolve_ivp reference, {ivp_members} member(s) one at a time: "
               f"{chk['ivp_wall_s']:.1f} s ({chk['ivp_steps_per_s']:.3g} member-h/s; best "
               f"compiled throughput is {best / chk['ivp_steps_per_s']:,.0f}x)")
@@ -319,9 +377,12 @@ def main(argv=None) -> int:
                    help="another pondsim checkout to time the study commands on")
     p.add_argument("--memory", action="store_true", help="peak memory of each engine run")
     p.add_argument("--repeat", type=int, default=3, help="repeats of each stage timing")
+    p.add_argument("--skip-numpy-above", type=int, default=None,
+                   help="time only the compiled engine above this many members")
     args = p.parse_args(argv)
     run(args.scenario, tuple(args.sizes), args.ivp_members, studies=args.studies,
-        baseline=args.baseline, memory=args.memory, repeat=args.repeat)
+        baseline=args.baseline, memory=args.memory, repeat=args.repeat,
+        skip_numpy_above=args.skip_numpy_above)
     return 0
 
 

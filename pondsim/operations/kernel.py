@@ -40,6 +40,7 @@ compiles for a few seconds, later processes load the machine code.
 from __future__ import annotations
 
 import math
+import types
 
 import numba
 import numpy as np
@@ -449,16 +450,26 @@ def _run_py(hour_a, hour_scale, par, maint, decay, inv_k, param, tau_s, tau_z, f
 #: The loop over blocks shared by the cores (dynamically: one block at a time, so a core
 #: slowed by other work does not hold the other back), and the same loop on one core for
 #: ensembles of one block (no thread start-up).
-_run = njit(parallel=True, **_JIT)(_run_py)
-_run_serial = njit(**_JIT)(_run_py)
+def _named(fn, name: str):
+    """*fn* under another name: numba's on-disk cache is keyed by the function's name and
+    signature, not by ``parallel``, so the two builds below need names of their own."""
+    code = fn.__code__.replace(co_name=name, co_qualname=name)
+    twin = types.FunctionType(code, fn.__globals__, name, fn.__defaults__, fn.__closure__)
+    twin.__qualname__ = name
+    return twin
+
+
+_run = njit(parallel=True, **_JIT)(_named(_run_py, "_run_parallel"))
+_run_serial = njit(**_JIT)(_named(_run_py, "_run_serial"))
 
 
 # --------------------------------------------------------------------------------------
 # Python entry
 # --------------------------------------------------------------------------------------
 def _per_member(a, n: int, dtype) -> np.ndarray:
-    """A scalar or (n,) array as a contiguous (n,) array."""
-    return np.ascontiguousarray(np.broadcast_to(np.asarray(a, dtype=dtype), (n,)))
+    """A scalar or (n,) array as a contiguous, writable (n,) array (a read-only array
+    would be a second machine-code version of the kernel)."""
+    return np.array(np.broadcast_to(np.asarray(a, dtype=dtype), (n,)))
 
 
 def hour_tables(drivers: Drivers):
