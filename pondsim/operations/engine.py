@@ -361,9 +361,10 @@ def integrate(drivers: Drivers, rules: HarvestRules, operation: Operation, *,
     check_ledger : bool
         Raise :class:`LedgerError` if the biomass ledger does not close.
     engine : {"numpy", "compiled"}
-        ``"numpy"`` (this function, the reference) or ``"compiled"``
+        ``"numpy"`` (this function, the reference; the default here) or ``"compiled"``
         (:func:`pondsim.operations.kernel.integrate_compiled`, same results to ~1e-6
-        relative); a light model the compiled engine does not cover runs on numpy.
+        relative, the default of the scenario key ``[run] engine`` and so of the
+        commands); a light model the compiled engine does not cover runs on numpy.
 
     Returns
     -------
