@@ -189,6 +189,28 @@ def test_no_crash_model_and_quiet_model_agree_and_book_no_salvage():
         assert not b.crashed.any() and b.ledger["salvaged"].sum() == 0.0
 
 
+@pytest.mark.parametrize("params", [
+    dict(window_days=1, loss_fraction=1.0),  # whole culture lost: no salvage
+    dict(window_days=10, loss_fraction=0.0, background_q10=1.0),  # all salvage, no Q10
+    dict(window_days=2, starvation_hazard_per_d=3.0, background_per_d=0.0),  # starvation
+])
+def test_crash_parameter_edges_agree(params):
+    n_days, n = 50, 48
+    d = _two_sets(n_days, "self_shading", "steele")
+    rl = _random_plans(n, n_days, np.random.default_rng(7))
+    crash = dataclasses.replace(CrashModel(background_per_d=0.02, cold_onset_k=1.0),
+                                **params)
+    kw = dict(set_of_member=np.arange(n) % 2, crash=crash, seed=11)
+    a = engine.integrate(d, rl, OPERATION, **kw)
+    b = engine.integrate(d, rl, OPERATION, engine="compiled", **kw)
+    assert_same(a, b)
+    assert a.crashed.sum() > 3
+    if crash.loss_fraction == 1.0:
+        assert b.ledger["salvaged"].sum() == 0.0
+    if crash.loss_fraction == 0.0:
+        assert b.ledger["lost"].sum() == 0.0 and b.ledger["salvaged"].sum() > 0
+
+
 def test_result_does_not_depend_on_chunks_or_threads():
     """Members' streams are their own: the same result, bit for bit, whatever the chunk
     size or the number of threads."""
