@@ -289,14 +289,25 @@ def _dewatering(out: Path, scenario, manifest: dict) -> list[str]:
 
     check = read_table(path, index_col=["policy", "season"])
     cap = scenario.harvest.dewatering_capacity_m3_per_d
+    periods = list(pd.unique(check.index.get_level_values("season")))
+    seasons = [p for p in periods if p != "year"]
     rows, attrs = [], []
-    for (pol, season), r in check.iterrows():
-        ok = str(r["within_capacity"])
-        rows.append([_text_td(pol), _text_td(season, nowrap=True),
-                     _td(r["dewatering_farm_m3"], 0, col="dewatering_farm_m3"),
-                     _td(r["peak_7d_mean_farm_m3_d"], 0, col="peak_7d_mean_farm_m3_d"),
-                     _text_td("OVER CAPACITY" if ok == "no" else ok)])
-        attrs.append(f' data-policy="{esc(pol)}" data-season="{esc(season)}"')
+    for pol in pd.unique(check.index.get_level_values("policy")):
+        part = check.xs(pol, level="policy")
+        cells = [f'<th scope="row">{esc(pol)}</th>']
+        for season in seasons:
+            r = part.loc[season]
+            cell = _td(r["peak_7d_mean_farm_m3_d"], 0, col="peak_7d_mean_farm_m3_d")
+            if str(r["within_capacity"]) == "no":
+                cell = cell.replace('class="num"', 'class="num over"').replace(
+                    "</td>", " (over)</td>")
+            cells.append(cell)
+        year = part.loc["year"]
+        ok = str(year["within_capacity"])
+        cells += [_td(year["dewatering_farm_m3"], 0, col="dewatering_farm_m3"),
+                  _text_td("OVER CAPACITY" if ok == "no" else ok)]
+        rows.append(cells)
+        attrs.append(f' data-policy="{esc(pol)}"')
     over = sorted({p for (p, s), r in check.iterrows()
                    if str(r["within_capacity"]) == "no"})
     text = (f"The dewatering check that pondsim tune applies: the farm's daily culture "
@@ -310,11 +321,12 @@ def _dewatering(out: Path, scenario, manifest: dict) -> list[str]:
                  "(harvest.dewatering_capacity_m3_per_d). "
                  + ("Over capacity in some season: " + ", ".join(over) + "."
                     if over else "Every rule stays within it."))
-    return [_p(text), _table(["policy or plan", "season", "dewatering [m³ farm⁻¹]",
-                              f"peak {DEWATERING_WINDOW_D}-day mean [m³ d⁻¹]",
-                              "within capacity"], rows,
-                             caption="Dewatering load of the farm by season (member means)",
-                             table_id="dewatering-table", row_attrs=attrs)]
+    headers = (["policy or plan"]
+               + [f"{s}: peak {DEWATERING_WINDOW_D}-day mean [m³ d⁻¹]" for s in seasons]
+               + ["dewatering per year [m³ farm⁻¹]", "within capacity all year"])
+    return [_p(text), _table(headers, rows, caption="Dewatering load of the farm by season "
+                             "(member means)", table_id="dewatering-table",
+                             row_attrs=attrs)]
 
 
 def _harvest(out: Path, scenario, comparison, best, summary=None, manifest=None) -> str:

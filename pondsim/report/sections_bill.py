@@ -6,6 +6,7 @@ from :func:`pondsim.studies.bill.scenario_bill`)."""
 
 from __future__ import annotations
 
+import re
 from pathlib import Path
 
 import numpy as np
@@ -45,26 +46,36 @@ def _currency(bill: pd.DataFrame) -> str | None:
     return None if total is None else total[len("total_cost_"):]
 
 
+def unit_text(unit: str) -> str:
+    """A unit as printed (m3 -> m³, t-1 -> t⁻¹)."""
+    text = str(unit).replace("CO2", "CO₂")
+    text = re.sub(r"(?<=[A-Za-z])-([1-3])\b", lambda m: "⁻" + _SUP[m.group(1)], text)
+    return re.sub(r"(?<=[A-Za-z])([23])\b", lambda m: _SUP[m.group(1)], text)
+
+
+_SUP = {"1": "¹", "2": "²", "3": "³"}
+
+
 def _lines(lines: pd.DataFrame, currency: str | None) -> str:
     rows = []
     for name, r in lines.iterrows():
         priced = str(r["priced"])
         if priced == "yes":
-            price = f"{_num(r['unit_price'], 2)} {r['price_unit']}"
+            price = f"{_num(r['unit_price'], 2)} {unit_text(r['price_unit'])}"
             cost = _td(r["cost_per_yr"], 0, col="cost_per_yr")
         else:
-            price, cost = "—", f'<td class="nowrap">{esc(priced)}</td>'
-        rows.append([f'<th scope="row">{esc(name)}</th>',
+            price, cost = "—", _text_td(priced)
+        rows.append([f'<th scope="row">{esc(name.replace("_", " "))}</th>',
                      _td(r["quantity_per_yr"], 2, col="quantity_per_yr"),
-                     _text_td(r["unit"], nowrap=True), _text_td(r["basis"]),
-                     _text_td(r["source"]), _text_td(price, nowrap=True), cost])
+                     _text_td(unit_text(r["unit"])), _text_td(r["basis"]),
+                     _text_td(r["source"]), _text_td(price), cost])
     cur = currency or "currency"
     return _table(["line", "quantity per year", "unit", "basis", "source", "unit price",
                    f"cost per year [{cur}]"], rows,
                   caption="Each line of the bill: what it is billed on and where its "
                   "numbers come from (member means per year)", table_id="bill-lines",
                   row_attrs=[f' data-line="{esc(n)}"' for n in lines.index],
-                  widths=(12, 9, 7, 27, 25, 9, 11))
+                  widths=(11, 10, 9, 25, 25, 9, 11))
 
 
 def _cost_per_t(per_t: pd.DataFrame, currency: str) -> str:
@@ -86,35 +97,27 @@ def _cost_per_t(per_t: pd.DataFrame, currency: str) -> str:
                   row_attrs=[f' data-level="{n}"' for n in COST_MEANING])
 
 
-def _monthly(bill: pd.DataFrame, currency: str | None, lead: str) -> list[str]:
-    qty = [c for c in bill.columns if "_cost_" not in c and not c.startswith("cost_per_t_")]
+#: Quantity columns of the monthly table (the rest of the bill's columns stay in the CSV).
+MONTHLY_COLUMNS = ("product_t", "uptake_biomass_t", "co2_t", "n_t", "p_t", "makeup_water_m3",
+                   "mixing_MWh", "harvest_MWh")
+
+
+def _monthly(bill: pd.DataFrame, currency: str | None, lead: str) -> str:
+    cols = [c for c in MONTHLY_COLUMNS if c in bill.columns]
+    labels = [bill_label(c) for c in cols]
+    if currency is not None:
+        cols += [f"total_cost_{currency}", f"cost_per_t_{currency}"]
+        labels += [f"inputs cost [{currency}]", f"per tonne of product [{currency} t⁻¹]"]
     rows = []
     for month, r in bill.iterrows():
         rows.append([f'<th scope="row">{esc(month)}</th>']
-                    + [_td(r[c], DIGITS.get(c, 3), col=c) for c in qty])
-    attrs = [f' data-month="{esc(m)}"' for m in bill.index]
-    out = [_table(["month"] + [bill_label(c) for c in qty], rows,
-                  caption=f"Quantities of the farm by month for {lead} (member means; last "
-                  "row: the year)", table_id="bill-table", row_attrs=attrs)]
-    if currency is None:
-        return out
-    costs = [c for c in bill.columns if "_cost_" in c or c.startswith("cost_per_t_")]
-    rows = []
-    for month, r in bill.iterrows():
-        rows.append([f'<th scope="row">{esc(month)}</th>']
-                    + [_td(r[c], 0, col=c) for c in costs])
-    headers = ["month"]
-    for c in costs:
-        if c.startswith("cost_per_t_"):
-            headers.append(f"cost per tonne of product [{currency} t⁻¹]")
-        elif c.startswith("total_cost_"):
-            headers.append(f"total [{currency}]")
-        else:
-            headers.append(f"{c.split('_cost_')[0].replace('_', ' ')} [{currency}]")
-    out.append(_table(headers, rows, caption=f"Costs of the farm by month for {lead} "
-                      "(member means; per tonne = the month's cost over its product)",
-                      table_id="bill-costs", row_attrs=attrs))
-    return out
+                    + [_td(r[c], DIGITS.get(c, 0 if "cost" in c else 3), col=c)
+                       for c in cols])
+    return _table(["month"] + labels, rows,
+                  caption=f"The bill by month for {lead} (member means; last row: the "
+                  "year; each line's monthly cost and the fertiliser products are in "
+                  "inputs_bill.csv)", table_id="bill-table",
+                  row_attrs=[f' data-month="{esc(m)}"' for m in bill.index])
 
 
 def inputs_section(out: Path, manifest: dict, bill: pd.DataFrame) -> str:
@@ -146,7 +149,7 @@ def inputs_section(out: Path, manifest: dict, bill: pd.DataFrame) -> str:
                            "year row below divides the mean cost by the mean product, so "
                            "the two need not agree. For a cost P90 is the LOW value and "
                            "P10 the conservative one."))
-    body += _monthly(bill, currency, lead)
+    body.append(_monthly(bill, currency, lead))
     for note in manifest.get("bill", {}).get("notes", []):
         body.append(_p(f"Note: {note}.", "note"))
     return "\n".join(body)
