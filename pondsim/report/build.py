@@ -201,6 +201,23 @@ def cmd_report(args) -> int:
     print(f"lead: {m['lead_policy']}: P50 {r['P50_farm_t_yr']:,.1f} t, P90 "
           f"{r['P90_farm_t_yr']:,.1f} t AFDW per year for the farm, "
           f"{r['mean_g_m2_d']:.2f} g/m2/d, {r['expected_crashes_yr']:.2f} crashes per year")
+    check = m.get("site_check")
+    if check:
+        print(("WARNING: " if str(check).startswith("FAILED") else "") + f"site check {check}")
+    if (out / "summary.csv").is_file():
+        summary = read_table(out / "summary.csv", index_col="policy")
+        for pol in summary.index:
+            if float(summary.loc[pol, "washed_out_pct"]) > 0:
+                print(f"WARNING: {pol} washes out (held at the viable floor too long) in "
+                      f"{summary.loc[pol, 'washed_out_pct']:.0f} % of members")
+    per_t = out / "inputs_cost_per_t.csv"
+    cur = (m.get("bill") or {}).get("currency")
+    if cur and per_t.is_file():
+        row = read_table(per_t, index_col="figure").iloc[0]
+        print(f"inputs per tonne of product: P50 {row[f'P50_{cur}_per_t']:,.0f} {cur}, "
+              f"conservative P10 {row[f'P10_{cur}_per_t']:,.0f} {cur}")
+    else:
+        print("inputs bill: not priced (the scenario has no [prices])")
     print(f"report written: {run.path}")
     print("\n" + CAUTION)
     return 0

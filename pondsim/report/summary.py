@@ -125,11 +125,16 @@ def _washout(summary: pd.DataFrame | None, lead: str) -> str:
     washed = [p for p in summary.index if float(summary.loc[p, "washed_out_pct"]) > 0]
     if not washed:
         return "no rule holds the culture at its viable floor long enough to wash it out"
-    text = "; ".join(f"{p} in {_num(summary.loc[p, 'washed_out_pct'], 0)} % of members"
-                     for p in washed)
+    if len(washed) == len(summary.index) and len(washed) > 1:
+        share = summary["washed_out_pct"].astype(float)
+        text = (f"every rule and plan, in {_num(share.min(), 0)} to {_num(share.max(), 0)} "
+                "% of members")
+    else:
+        text = "; ".join(f"{p} in {_num(summary.loc[p, 'washed_out_pct'], 0)} % of members"
+                         for p in washed)
     return ("WASHED OUT (held at the viable floor too long): " + text
             + (f"; the lead {lead} is one of them, see the plan per season"
-               if lead in washed else ""))
+               if lead in washed and len(washed) < len(summary.index) else ""))
 
 
 def _water_and_dewatering(out: Path, scenario) -> str:
@@ -244,9 +249,7 @@ def summary_section(out: Path, scenario, manifest: dict) -> str:
         cautions.insert(1, f"Weather: {notes[-1]}")
     body.append('<div class="caution" id="summary-cautions"><strong>Cautions.</strong><ul>'
                 + "".join(f"<li>{esc(c)}</li>" for c in cautions) + "</ul></div>")
-    details = ", ".join(f"{title.lower()} ({i + 1})" for i, (_, title) in
-                        enumerate(SECTIONS) if i)
-    body.append(f'<p class="note">Details follow: {esc(details)}.</p>')
+    body.append(f'<p class="note">Details follow in sections 2 to {len(SECTIONS)}.</p>')
     return "\n".join(body)
 
 
