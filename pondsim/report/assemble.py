@@ -160,14 +160,16 @@ def default_note(doc: str, value) -> str:
     value labelled ASSUMPTION.
 
     A doc that quotes a value without its source checked ("from memory" in the code) is
-    shown as "ASSUMPTION, source not checked"; a default whose doc cites no source and
-    is not marked gets "ASSUMPTION (pondsim's default; no source cited)". A key left
-    unset assumes nothing and is shown as it is.
+    shown as "ASSUMPTION, source not checked"; a numeric default whose doc cites no source
+    and is not marked gets "ASSUMPTION (pondsim's default; no source cited)". A key left
+    unset assumes nothing, and a switch or a name (true/false, a model's name, a text) is
+    a choice rather than a value: both are shown as they are.
     """
     note = re.sub(r"\bfrom memory\b", "ASSUMPTION, source not checked", str(doc),
                   flags=re.IGNORECASE)
     note = re.sub(r"\bnot verified\b", "not checked", note, flags=re.IGNORECASE)
-    if value is None or _SOURCED.search(note):
+    numeric = isinstance(value, int | float) and not isinstance(value, bool)
+    if not numeric or _SOURCED.search(note):
         return note
     return f"{note.rstrip()} ASSUMPTION (pondsim's default; no source cited)."
 

@@ -334,7 +334,9 @@ def _harvest(out: Path, scenario, comparison, best, summary=None, manifest=None)
     body = [_p("Each harvest rule and season plan was run on every member of the ensemble. "
                f"For each season the best rule is the one with the most biomass whose "
                f"probability of at least one crash in the season stays within the risk "
-               f"limit of {limit:.0%} (crash.max_season_probability). The seasonal winners "
+               f"limit of {limit:.0%} (crash.max_season_probability) and whose culture "
+               "never washes out there; where no rule meets both, the least risky is "
+               "named and flagged. The seasonal winners "
                "together make a plan; to get its annual numbers, write it as a [[plan]] "
                "in the scenario (or run pondsim tune) and run the report again.")]
     names = list(pd.unique(comparison.index.get_level_values("policy")))
