@@ -135,6 +135,8 @@ def _headline(out: Path, scenario, manifest: dict, annual, summary, best) -> str
     body.append(_table(headers, rows, caption="Annual yield over the ensemble (P90 = yield "
                        "exceeded in 90 % of members)", table_id="headline-table",
                        row_attrs=attrs))
+    if manifest.get("crash_basis"):
+        body.append(_p(f"Basis of these numbers: {manifest['crash_basis']}.", "note"))
     implausible = [p for p in summary.index if not bool(summary.loc[p, "plausible"])]
     for p in implausible:
         body.append(_p(f"Warning: {p} converts more than 4.6 % of total solar radiation "
@@ -385,7 +387,9 @@ def _harvest(out: Path, scenario, comparison, best, summary=None, manifest=None)
                         "through the year with the carrying capacity K, the 10th to 90th "
                         "percentile "
                         "band over members, harvest days and crashes of one member.",
-                        "Density through the year by rule, with the ensemble's median K."))
+                        "Density through the year by rule, with the ensemble's median K; "
+                        "harvests and crashes of one member on "
+                        f"{(manifest or {}).get('weather_basis') or 'the study weather'}."))
     if summary is not None:
         body += _washout(scenario, summary)
     body += _dewatering(out, scenario, manifest or {})

@@ -169,7 +169,6 @@ def _bill(bill: pd.DataFrame | None, lead: str, per_t: pd.DataFrame | None = Non
     text = f"for {lead}, per year: " + ", ".join(parts)
     total = next((c for c in bill.columns if c.startswith("total_cost_")), None)
     cost_t = next((c for c in bill.columns if c.startswith("cost_per_t_")), None)
-    legacy = [c for c in bill.columns if c.endswith("_cost")]
     if total is not None:  # the priced bill: <line>_cost_<currency>, total, per tonne
         currency = total[len("total_cost_"):]
         text += f"; priced inputs {_num(y[total], 0)} {currency} per year"
@@ -180,12 +179,6 @@ def _bill(bill: pd.DataFrame | None, lead: str, per_t: pd.DataFrame | None = Non
                      f"conservative P10 {_num(r[f'P10_{currency}_per_t'], 0)}")
         elif cost_t is not None and np.isfinite(float(y[cost_t])):
             text += f", {_num(y[cost_t], 0)} {currency} per tonne of product"
-    elif legacy:
-        cost = float(sum(float(y[c]) for c in legacy))
-        text += f"; priced inputs {_num(cost, 0)} (currency of the scenario) per year"
-        tonnes = float(y["biomass_t"]) if "biomass_t" in y.index else np.nan
-        if np.isfinite(tonnes) and tonnes > 0:
-            text += f", {_num(cost / tonnes, 0)} per tonne of biomass"
     else:
         text += f"; cost: {NOT_AVAILABLE} (not priced)"
     return text
