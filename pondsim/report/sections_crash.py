@@ -96,13 +96,16 @@ def crash_section(out: Path, scenario, manifest: dict, crash_by_month, calendar)
     """The crash section: method in words, crashes by cause, salvage, months, calendar."""
     c = scenario.crash
     basis = basis_text(manifest)
-    body = [_p(method_text(scenario)),
-            _p("The hazard values are ASSUMPTIONS until fitted to the site's own pond log "
-               "(pondsim hazardfit)." if "assumption" in basis.lower() else
-               "The hazard values were set in the scenario: " + basis)]
     if not c.enabled:
-        body.append(_p("Crashes are switched off in this scenario: the tables show no "
-                       "crash, and the calendar shows only where K falls."))
+        body = [_p("Crashes are switched off in this scenario (crash.enabled = false): no "
+                   "crash is drawn, the tables show none and the calendar shows only where "
+                   "K falls. With crashes on, the model is this: " + method_text(scenario))]
+    else:
+        body = [_p(method_text(scenario)),
+                _p("The hazard values are ASSUMPTIONS until fitted to the site's own pond "
+                   "log (pondsim hazardfit)." if "assumption" in basis.lower() else
+                   "The hazard values are the scenario's [crash] values; their source is "
+                   "in crash.basis (section 9).")]
     body.append(_p(f"Basis of every crash number below: {basis}.", "note"))
     body.append(_ul([CAUSE_TEXT[k] for k in CAUSES]))
     per_year_path = out / "crashes_per_year.csv"
