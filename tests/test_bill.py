@@ -82,12 +82,15 @@ def _inputs(**kw):
 
 
 def test_pond_mixing_by_hand():
-    # No published raceway worked example with numbers could be opened in the reference
-    # library for this check (a design text's example remains to be added); the Manning
-    # kernel itself is checked against published worked channel problems in
-    # tests/test_inputs.py. Here the assembly is recomputed by hand: Manning friction
-    # S = (n v / R^(2/3))^2 over the flow path L = A / w, plus
-    # 2 bends x k v^2/(2 g); P = rho g Q h / (eta_pw eta_drive) [R, Chow 1959 ch. 5 form]
+    # NO published raceway worked example could be read for this check: the search tool
+    # exposed only the opening page of Chisti (2016) "Large-scale production of algal
+    # biomass: raceway ponds" (nomenclature: Manning factor f_M, loop length L_r,
+    # efficiency e) and the abstracts of other raceway design papers, never their worked
+    # numbers. The kernel's Manning head loss is checked against published worked
+    # hydraulics problems below and in tests/test_inputs.py; here the assembly is
+    # recomputed by hand: Manning friction S = (n v / R^(2/3))^2 over the flow path
+    # L = A / w, plus 2 bends x k v^2/(2 g); P = rho g Q h / (eta_pw eta_drive)
+    # [R, Chow 1959 ch. 5 form]
     inp = _inputs(channel_width_m=5.0, velocity_m_s=0.3, manning_n=0.015,
                   bend_loss_k=2.0, paddlewheel_efficiency=0.2, drive_efficiency=0.85)
     area, depth = 1000.0, 0.3
@@ -98,6 +101,50 @@ def test_pond_mixing_by_hand():
     assert m["head_m"] == pytest.approx(head, rel=1e-12)
     assert m["power_w"] == pytest.approx(1000 * 9.80665 * q * head / 0.17, rel=1e-12)
     assert m["power_w_m3"] == pytest.approx(m["power_w"] / (area * depth), rel=1e-12)
+
+
+# Worked head-loss table read for this check: "Friction and other losses in power
+# penstock (Q = 1,000 ft3/s)", Colorado Water Conservation Board document 118951, p. 42
+# (dnrweblink.state.co.us/CWCB/0/doc/118951/Page42.aspx). Its rows: velocity head
+# hv = 3.57 ft in a 110-inch pipe; "Friction in pipe, Manning, L = 141 ft, 110-inch dia.":
+# 0.70 ft at n = 0.012 (s max = 0.00496) and 0.31 ft at n = 0.008; note: "s min / s max =
+# (n min / n max)^2". Printed to 2 decimals in ft (0.005 ft) and 3 significant figures.
+_FT = 0.3048  # m per international foot (exact by definition, 1959)
+_PIPE_D = 110 * 0.0254  # [m]
+_PIPE_Q = 1000 * _FT ** 3  # [m3 s-1]
+_PIPE_V = _PIPE_Q / (np.pi * _PIPE_D ** 2 / 4)  # [m s-1]
+
+
+def test_velocity_head_of_the_published_penstock_table():
+    # one loss coefficient k = 1 at zero length is exactly one velocity head v^2/(2 g)
+    from pondsim.studies.bill_mixing import raceway_head_loss
+    hv = raceway_head_loss(_PIPE_V, 1.0, 1.0, 0.0, n_bends=1, bend_k=1.0)
+    assert hv / _FT == pytest.approx(3.57, abs=0.005)
+
+
+@pytest.mark.parametrize("n, slope, head_ft", [(0.012, 0.00496, 0.70), (0.008, None, 0.31)])
+def test_manning_friction_of_the_published_penstock_table(n, slope, head_ft):
+    from pondsim.studies.bill_mixing import manning_friction_slope
+    s = manning_friction_slope(_PIPE_V, _PIPE_D / 4, n)  # full pipe: R = D / 4
+    if slope is not None:
+        assert s == pytest.approx(slope, abs=5e-6)
+    assert s * 141 == pytest.approx(head_ft, abs=0.005)  # friction head over 141 ft [ft]
+    # the table's own rule: friction slopes scale with n^2
+    assert s / manning_friction_slope(_PIPE_V, _PIPE_D / 4, 0.012) == pytest.approx(
+        (n / 0.012) ** 2, rel=1e-12)
+
+
+@pytest.mark.parametrize("b, z, q, s0, n, y", [(2.0, 1.5, 50.0, 0.0025, 0.030, 3.207),
+                                               (4.0, 2.0, 6.0, 0.00039, 0.030, 1.405)])
+def test_manning_normal_depth_of_published_trapezoidal_problems(b, z, q, s0, n, y):
+    # Solution manual of "Elementary Hydraulics", ch. 11 "Resistance in open channels",
+    # problems 11.1 and 11.4 (read in a public copy; the authors, Cruise, Sherif & Singh
+    # 2007, are from memory): at the printed normal depth y (3 decimals) Manning's
+    # equation carries the design discharge; y rounded by 0.0005 m moves Q by < 0.1 %.
+    from pondsim.studies.bill_mixing import manning_velocity
+    area = (b + z * y) * y
+    perimeter = b + 2 * y * np.sqrt(1 + z * z)
+    assert manning_velocity(area / perimeter, s0, n) * area == pytest.approx(q, rel=1e-3)
 
 
 @pytest.mark.parametrize("ratio", [0.5, 1.2, 2.0])
