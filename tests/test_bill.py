@@ -319,32 +319,74 @@ def test_leap_year_and_bad_policy():
 # --- ensemble statistics ---------------------------------------------------------------
 
 def test_exceedance_convention_for_a_cost():
-    # P90 = exceeded with probability 0.9 = 10th percentile (the LOW cost); P10 =
-    # exceeded with probability 0.1 = 90th percentile (the conservative HIGH cost).
+    # One convention for yield and cost (pondsim.studies.quantiles): P90 = exceeded with
+    # probability 0.9 = 10th percentile (the LOW cost); P10 = exceeded with probability
+    # 0.1 = 90th percentile (the conservative HIGH cost); numpy's linear quantiles.
     x = np.arange(1.0, 11.0)
-    assert B.exceedance_value(x, 0.9) == pytest.approx(np.quantile(x, 0.1))
-    assert B.exceedance_value(x, 0.1) == pytest.approx(np.quantile(x, 0.9))
-    assert B.exceedance_value(x, 0.5) == pytest.approx(5.5)
     table = B.cost_per_tonne_table(x, "EUR").iloc[0]
-    assert table["P90_EUR_per_t"] < table["P50_EUR_per_t"] < table["P10_EUR_per_t"]
+    assert table["P90_EUR_per_t"] == pytest.approx(np.quantile(x, 0.1))
+    assert table["P10_EUR_per_t"] == pytest.approx(np.quantile(x, 0.9))
+    assert table["P50_EUR_per_t"] == pytest.approx(5.5)
+    assert B.COST_EXCEEDANCE == {"P90": 0.9, "P50": 0.5, "P10": 0.1}
+    from pondsim.studies.quantiles import EXCEEDANCE, exceedance_quantile
+    assert exceedance_quantile("P90") == pytest.approx(EXCEEDANCE["P90"]) == 0.1
+    assert exceedance_quantile("P10") == pytest.approx(0.9)
     # members without product cost "infinitely much" and sit in the high tail
-    assert B.exceedance_value(np.append(x, np.inf), 0.5) == pytest.approx(6.0)
-    assert np.isinf(B.exceedance_value(np.append(x, [np.inf] * 3), 0.1))
+    t = B.cost_per_tonne_table(np.append(x, np.inf), "EUR").iloc[0]
+    assert t["P50_EUR_per_t"] == pytest.approx(6.0)
+    assert np.isinf(t["mean_EUR_per_t"])
+    t = B.cost_per_tonne_table(np.append(x, [np.inf] * 3), "EUR").iloc[0]
+    assert np.isinf(t["P10_EUR_per_t"]) and np.isfinite(t["P90_EUR_per_t"])
 
 
-def test_quantile_interval_covers_the_true_quantile():
-    # distribution-free order-statistic interval (Hahn & Meeker 1991, from memory for the
-    # chapter): coverage of the 0.1 quantile of a standard normal from n = 80 is >= 0.95
-    # by construction (conservative); checked by simulation with 400 samples.
+def _design(years, draws, replicates):
+    """Member coordinates of an outlook ensemble (draws nested in years)."""
+    y, d, r = np.meshgrid(np.arange(years), np.arange(draws), np.arange(replicates),
+                          indexing="ij")
+    return xr.Dataset(coords={"member": np.arange(y.size),
+                              "weather_year": ("member", y.ravel()),
+                              "draw": ("member", d.ravel()),
+                              "replicate": ("member", r.ravel())})
+
+
+def test_cost_interval_resamples_whole_weather_years():
+    # Known answer. Five weather years whose costs are 1..5 per tonne, identical in all
+    # 40 crash replicates of a year (the year decides everything). The pooled P90 (10th
+    # percentile of 200 members) is 1. Resampling the 5 years with replacement, the
+    # pooled 10th percentile is the smallest year drawn: P(min <= 1) = 1 - 0.8^5 = 0.672,
+    # P(min <= 2) = 1 - 0.6^5 = 0.922, P(min <= 3) = 1 - 0.4^5 = 0.990, so the 95 %
+    # percentile interval is [1, 3]. Treating the 200 members as independent gives the
+    # order-statistic interval [1, 1] (ranks 12-30 of 200 all equal 1): falsely certain.
+    design = _design(5, 1, 40)
+    cost = design["weather_year"].values + 1.0
+    row = B.cost_per_tonne_table(cost, "EUR", design).iloc[0]
+    assert row["P90_EUR_per_t"] == 1.0
+    assert (row["P90_EUR_per_t_low"], row["P90_EUR_per_t_high"]) == (1.0, 3.0)
+    assert row["weather_years"] == 5
+    assert row["interval_method"] == "cluster bootstrap over weather years"
+    naive = B.cost_per_tonne_table(cost, "EUR").iloc[0]
+    assert (naive["P90_EUR_per_t_low"], naive["P90_EUR_per_t_high"]) == (1.0, 1.0)
+    assert naive["interval_method"].startswith("order statistics")
+
+
+def test_cost_interval_of_independent_members_is_the_order_statistic_interval():
+    # One varying level (replicates only): members are independent and the interval is
+    # the distribution-free binomial one (Hahn & Meeker 1991, ch. 5, from memory for the
+    # chapter): for the 90th percentile of n = 100, ranks 84 and 96 (scipy binom ppf of
+    # 0.025 / 0.975 at p = 0.9 gives 84 and 95, upper rank + 1), i.e. values 84 and 96
+    # of 1..100; coverage checked by simulation: >= 0.93 of 400 normal samples.
+    x = np.arange(1.0, 101.0)
+    row = B.cost_per_tonne_table(x, "EUR", _design(1, 1, 100)).iloc[0]
+    assert (row["P10_EUR_per_t_low"], row["P10_EUR_per_t_high"]) == (84.0, 96.0)
     rng = np.random.default_rng(0)
-    true = -1.2815515655446004  # scipy.stats.norm.ppf(0.1)
+    true = 1.2815515655446004  # scipy.stats.norm.ppf(0.9)
     hits = 0
     for _ in range(400):
-        lo, hi = B.quantile_interval(rng.standard_normal(80), 0.1)
-        hits += lo <= true <= hi
+        r = B.cost_per_tonne_table(rng.standard_normal(80), "EUR").iloc[0]
+        hits += r["P10_EUR_per_t_low"] <= true <= r["P10_EUR_per_t_high"]
     assert hits / 400 >= 0.93
-    lo, hi = B.quantile_interval(np.arange(5.0), 0.1)
-    assert np.isnan(lo)  # too few members for a 95 % lower bound
+    r = B.cost_per_tonne_table(np.arange(5.0), "EUR").iloc[0]
+    assert np.isnan(r["P90_EUR_per_t_low"])  # too few members for a 95 % lower bound
 
 
 # --- scenario sections -----------------------------------------------------------------

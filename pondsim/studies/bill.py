@@ -32,7 +32,6 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 import xarray as xr
-from scipy import stats
 
 from pondsim.errors import InputError, did_you_mean
 from pondsim.scenario.model import Inputs, Prices
@@ -48,13 +47,26 @@ from pondsim.studies.bill_mixing import (
     raceway_geometry,
     raceway_head_loss,
 )
+from pondsim.studies.quantiles import (
+    CONFIDENCE,
+    exceedance_quantile,
+    member_cube,
+    nested_bootstrap,
+)
 
 _MONTH_ABBR = ("Jan", "Feb", "Mar", "Apr", "May", "Jun", "Jul", "Aug", "Sep", "Oct", "Nov",
                "Dec")
 
 #: Exceedance probabilities of the cost-per-tonne figures: name -> probability that the
-#: cost is higher. P10 is the conservative (high) cost.
-COST_EXCEEDANCE = {"P90": 0.9, "P50": 0.5, "P10": 0.1}
+#: cost is higher (:func:`pondsim.studies.quantiles.exceedance_quantile` gives the
+#: quantile level, 1 - p). P10 is the conservative (high) cost.
+COST_EXCEEDANCE = {name: int(name[1:]) / 100.0 for name in ("P90", "P50", "P10")}
+
+#: Stand-in for an infinite cost per tonne (a member without product) inside the
+#: quantile machinery, which interpolates and would turn inf - inf into NaN; any
+#: interpolated value at or above :data:`_INF_FROM` is reported as infinite again.
+_NO_PRODUCT = 1e300
+_INF_FROM = 1e250
 
 
 def _source(section: str, name: str, value) -> str:
@@ -150,7 +162,8 @@ class Bill:
     cost_per_t : pandas.DataFrame or None
         Ensemble statistics of the annual cost per tonne of product: mean, P90 (low
         cost, exceeded in 90 % of members), P50, P10 (conservative high cost, exceeded in
-        only 10 %), each with a 95 % distribution-free interval; None when not priced.
+        only 10 %), each with a 95 % interval that respects the ensemble's nesting (see
+        :func:`cost_per_tonne_table`); None when not priced.
     member_cost_per_t : numpy.ndarray or None
         Annual cost per tonne of product of every member [currency t-1].
     notes : list of str
@@ -329,39 +342,6 @@ def daily_quantities(ds: xr.Dataset, policy: str, inputs: Inputs, *, area_m2: fl
 
 
 # ---------------------------------------------------------------------------------------
-# Statistics
-# ---------------------------------------------------------------------------------------
-
-def exceedance_value(values, p_exceed: float) -> float:
-    """Value exceeded with probability *p_exceed* (the (1 − p) quantile, linear
-    interpolation; ``inf`` members, e.g. no product, count as the highest costs)."""
-    values = np.sort(np.asarray(values, dtype=float))
-    q = 1.0 - p_exceed
-    pos = q * (values.size - 1)
-    lo, hi = int(np.floor(pos)), int(np.ceil(pos))
-    if np.isinf(values[hi]) or np.isinf(values[lo]):
-        return float(values[hi]) if pos > lo else float(values[lo])
-    return float(values[lo] + (values[hi] - values[lo]) * (pos - lo))
-
-
-def quantile_interval(values, q: float, level: float = 0.95) -> tuple[float, float]:
-    """Distribution-free confidence interval of the *q* quantile from a sample.
-
-    The ranks bracket the quantile with binomial(n, q) probabilities (order-statistic
-    interval; e.g. Hahn & Meeker 1991, *Statistical Intervals*, Wiley). Returns NaN
-    bounds when the sample is too small for the level.
-    """
-    x = np.sort(np.asarray(values, dtype=float))
-    n = x.size
-    alpha = 1.0 - level
-    lo = int(stats.binom.ppf(alpha / 2, n, q))          # rank (1-based) of the lower bound
-    hi = int(stats.binom.ppf(1 - alpha / 2, n, q)) + 1  # rank of the upper bound
-    lower = x[lo - 1] if lo >= 1 else np.nan
-    upper = x[hi - 1] if hi <= n else np.nan
-    return float(lower), float(upper)
-
-
-# ---------------------------------------------------------------------------------------
 # The bill
 # ---------------------------------------------------------------------------------------
 
@@ -388,7 +368,7 @@ def price_lines(quantities: dict, lines: list, prices: Prices) -> dict:
     return costs
 
 
-def scenario_bill(ds: xr.Dataset, scenario, policy: str) -> Bill:
+def scenario_bill(ds: xr.Dataset, scenario, policy: str, *, seed: int = 0) -> Bill:
     """The inputs bill of *policy*, priced with the scenario's ``[prices]``.
 
     Parameters
@@ -399,6 +379,8 @@ def scenario_bill(ds: xr.Dataset, scenario, policy: str) -> Bill:
     scenario : Scenario
         Its ``pond``, ``inputs`` and ``prices``.
     policy : str
+    seed : int, default 0
+        Seed of the bootstrap of the cost-per-tonne intervals.
 
     Returns
     -------
@@ -436,7 +418,7 @@ def scenario_bill(ds: xr.Dataset, scenario, policy: str) -> Bill:
             annual_cost = total.sum(axis=1)
             member_cost_t = np.where(annual_product > 0, annual_cost / annual_product,
                                      np.inf)
-        per_t = cost_per_tonne_table(member_cost_t, currency)
+        per_t = cost_per_tonne_table(member_cost_t, currency, ds, seed=seed)
         unpriced = sorted({line.price_key for line in lines
                            if line.price_key and getattr(prices, line.price_key) is None})
         if unpriced:
@@ -466,21 +448,67 @@ def scenario_bill(ds: xr.Dataset, scenario, policy: str) -> Bill:
                 member_cost_per_t=member_cost_t, mixing=mixing, notes=notes)
 
 
-def cost_per_tonne_table(member_cost_t, currency: str) -> pd.DataFrame:
+def cost_per_tonne_table(member_cost_t, currency: str, design: xr.Dataset | None = None,
+                         *, confidence: float = CONFIDENCE,
+                         seed: int | None = 0) -> pd.DataFrame:
     """Ensemble statistics of the annual cost per tonne of product, one row.
 
-    Columns ``members``, ``mean_<cur>_per_t``, then for P90, P50 and P10 (probability
-    0.9, 0.5 and 0.1 that the cost is HIGHER; P10 is the conservative figure) the value
-    and its 95 % distribution-free interval (``*_low``, ``*_high``).
+    Parameters
+    ----------
+    member_cost_t : array-like, shape (n_member,) [currency t-1]
+        Annual cost per tonne of every member; ``inf`` for a member without product.
+    currency : str
+    design : xarray.Dataset, optional
+        The results whose member coordinates ``weather_year``, ``draw`` and
+        ``replicate`` give the ensemble's nesting (:func:`~pondsim.studies.quantiles.
+        member_cube`). Without it (or without those coordinates) the members are taken
+        as independent.
+    confidence : float, default 0.95
+    seed : int, optional
+        Seed of the bootstrap.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Columns ``members``, ``mean_<cur>_per_t``, then for P90, P50 and P10
+        (probability 0.9, 0.5 and 0.1 that the cost is HIGHER; P10 is the conservative
+        figure) the value and its interval (``*_low``, ``*_high``), then
+        ``weather_years``, ``confidence_pct`` and ``interval_method``.
+
+    Notes
+    -----
+    The same machinery as the yield's P50/P90 (:func:`~pondsim.studies.quantiles.
+    nested_bootstrap`): with several weather years, whole weather years (with their
+    draws and crash replicates) are resampled, because members sharing a year are not
+    independent; with one varying level, the distribution-free order-statistic
+    interval. Values are pooled quantiles with linear interpolation; a member without
+    product counts as the highest cost, and a figure that falls on or interpolates
+    towards such members is infinite.
     """
     x = np.asarray(member_cost_t, dtype=float)
+    if design is not None:
+        cube = member_cube(x[None, :], design)
+    else:
+        cube = x.reshape(1, 1, 1, -1)
+    finite = np.where(np.isinf(cube), _NO_PRODUCT, cube)
+    levels = [exceedance_quantile(name) for name in COST_EXCEEDANCE]
+    point, low, high = (np.where(v >= _INF_FROM, np.inf, v)[0]
+                        for v in nested_bootstrap(finite, levels, confidence=confidence,
+                                                  seed=seed))
+    varying = [n for n in cube.shape[1:] if n > 1]
+    method = ("cluster bootstrap over weather years" if cube.shape[1] > 1
+              and len(varying) > 1 else
+              "bootstrap over parameter draws" if len(varying) > 1 else
+              "order statistics (independent members)")
     row = {"members": int(x.size),
            f"mean_{currency}_per_t": float(x.mean()) if np.isfinite(x).all() else np.inf}
-    for name, p in COST_EXCEEDANCE.items():
-        row[f"{name}_{currency}_per_t"] = exceedance_value(x, p)
-        lo, hi = quantile_interval(x, 1.0 - p)
-        row[f"{name}_{currency}_per_t_low"] = lo
-        row[f"{name}_{currency}_per_t_high"] = hi
+    for k, name in enumerate(COST_EXCEEDANCE):
+        row[f"{name}_{currency}_per_t"] = float(point[k])
+        row[f"{name}_{currency}_per_t_low"] = float(low[k])
+        row[f"{name}_{currency}_per_t_high"] = float(high[k])
+    row["weather_years"] = int(cube.shape[1])
+    row["confidence_pct"] = 100.0 * confidence
+    row["interval_method"] = method
     return pd.DataFrame([row], index=pd.Index(["cost per tonne of product"], name="figure"))
 
 
@@ -500,7 +528,8 @@ def describe(bill: Bill) -> str:
         out.append(f"  {'total':>23}: {year[f'total_cost_{cur}']:>12,.0f} {cur} per year")
         row = bill.cost_per_t.iloc[0]
         out.append(f"cost per tonne of product over {int(row['members'])} members "
-                   f"[{cur} t-1], 95 % intervals in brackets:")
+                   f"[{cur} t-1], {row['confidence_pct']:.0f} % intervals in brackets "
+                   f"({row['interval_method']}):")
         meaning = {"P90": "low, optimistic: exceeded in 90 % of members",
                    "P50": "median", "P10": "CONSERVATIVE: exceeded in only 10 %"}
         for name, text in meaning.items():
@@ -520,5 +549,4 @@ def default_inputs() -> Inputs:
 
 
 __all__ = ["Bill", "COST_EXCEEDANCE", "Line", "cost_per_tonne_table", "daily_quantities",
-           "default_inputs", "describe", "exceedance_value", "pond_mixing", "price_lines",
-           "quantile_interval", "scenario_bill"]
+           "default_inputs", "describe", "pond_mixing", "price_lines", "scenario_bill"]
