@@ -206,13 +206,16 @@ def test_quantities_follow_their_stated_bases():
     y = bill.monthly.loc["year"]
     farm = 5000.0
     gross_t = ds["gross_growth"].sum("day").mean().item() * farm * 1e-6
+    net_t = (ds["gross_growth"] - ds["respiration"]).sum("day").mean().item() * farm * 1e-6
     comp = biomass_composition()
     assert y["uptake_biomass_t"] == pytest.approx(gross_t, rel=1e-12)
+    assert y["nutrient_biomass_t"] == pytest.approx(net_t, rel=1e-12)
     assert y["product_t"] == pytest.approx(
         ds["harvested"].sum("day").mean().item() * farm * 1e-6, rel=1e-12)
     assert y["co2_t"] == pytest.approx(gross_t * comp["co2_per_kg"] / 0.7, rel=1e-12)
-    assert y["n_t"] == pytest.approx(gross_t * comp["n_fraction"] * 0.75, rel=1e-12)
-    assert y["p_t"] == pytest.approx(gross_t * comp["p_fraction"], rel=1e-12)
+    # N and P on net growth (the default nutrient basis), C on gross growth
+    assert y["n_t"] == pytest.approx(net_t * comp["n_fraction"] * 0.75, rel=1e-12)
+    assert y["p_t"] == pytest.approx(net_t * comp["p_fraction"], rel=1e-12)
     # fertilisers deliver exactly the N and P bought
     dap, urea = FERTILISERS["dap_18_46_0"], FERTILISERS["urea"]
     assert y["dap_18_46_0_t"] * dap.p_fraction == pytest.approx(y["p_t"], rel=1e-12)
@@ -229,18 +232,98 @@ def test_quantities_follow_their_stated_bases():
     assert y["mixing_MWh"] == pytest.approx(power * 5 * 24 * 365 * 1e-6, rel=1e-12)
     assert y["harvest_MWh"] == pytest.approx(vol * 0.5e-3, rel=1e-12)
     # each line states its basis
-    assert bill.lines.loc["biomass taken up", "basis"].startswith("gross growth")
+    assert bill.lines.loc["biomass taken up", "basis"].startswith(
+        "carbon basis: gross growth")
+    assert bill.lines.loc["biomass assimilated (N, P)", "basis"].startswith(
+        "nutrient basis: net growth")
+    assert "net growth" in bill.lines.loc["urea", "basis"]
+    assert bill.lines.loc["CO2", "basis"].startswith("gross growth")
     assert "recovered by harvest" in bill.lines.loc["product", "basis"]
 
 
 def test_net_growth_basis_takes_off_respiration():
     ds = _results()
     gross = B.scenario_bill(ds, _scenario(), "p").monthly.loc["year", "co2_t"]
-    net = B.scenario_bill(ds, _scenario(_inputs(uptake_basis="net_growth")),
+    net = B.scenario_bill(ds, _scenario(_inputs(carbon_basis="net_growth")),
                           "p").monthly.loc["year", "co2_t"]
     ratio = (ds["gross_growth"] - ds["respiration"]).sum().item() / \
         ds["gross_growth"].sum().item()
     assert net / gross == pytest.approx(ratio, rel=1e-12)
+    n_gross = B.scenario_bill(ds, _scenario(_inputs(nutrient_basis="gross_growth")),
+                              "p").monthly.loc["year", "n_t"]
+    n_net = B.scenario_bill(ds, _scenario(), "p").monthly.loc["year", "n_t"]
+    assert n_net / n_gross == pytest.approx(ratio, rel=1e-12)
+
+
+def _exponential_culture(x0=100.0, mu=0.5, m=0.1, grow_days=10, dark_days=5, depth=0.25):
+    """Closed-form culture: dx/dt = (mu - m) x for grow_days, then dark (mu = 0) for
+    dark_days; no harvest. Daily gross growth = depth mu int x dt, respiration =
+    depth m int x dt [g m-2 d-1]."""
+    k = np.arange(grow_days + 1)
+    x_grow = x0 * np.exp((mu - m) * k)                        # stock at day ends
+    integral = np.diff(x_grow) / (mu - m)                     # int x dt per day
+    peak = x_grow[-1]
+    j = np.arange(dark_days + 1)
+    x_dark = peak * np.exp(-m * j)
+    integral_dark = -np.diff(x_dark) / m
+    gross = np.concatenate([mu * integral, np.zeros(dark_days)]) * depth
+    resp = np.concatenate([m * integral, m * integral_dark]) * depth
+    n = grow_days + dark_days
+    dates = pd.date_range("2025-01-01", periods=n, freq="D")
+    dims = ("policy", "member", "day")
+    ds = xr.Dataset(
+        {"gross_growth": (dims, gross[None, None]), "respiration": (dims, resp[None, None]),
+         "harvested": (dims, np.zeros((1, 1, n))),
+         "harvest_fraction": (dims, np.zeros((1, 1, n))),
+         "evaporation": (("day",), np.zeros(n)), "rain": (("day",), np.zeros(n))},
+        coords={"policy": ["p"], "member": [0], "day": np.arange(1, n + 1),
+                "date": (("day",), dates.to_numpy())})
+    return ds, x0, peak, x_dark[-1]
+
+
+def test_nutrient_basis_against_a_closed_form_culture():
+    # Exponential growth at mu - m = 0.4 d-1 for 10 days from 100 g m-3, then 5 dark days
+    # of respiration only, 0.25 m deep, no harvest. Mass balance of the model
+    # (dx/dt = mu x - m x): gross growth = mu / (mu - m) (X10 - x0), respiration its
+    # m / mu = 20 % share; the N the culture holds at its peak came from the medium:
+    # X10 - x0 = x0 (e^4 - 1) per m3. The dark days release N back into the medium
+    # (nothing leaves the pond), so the nutrient purchases are the peak, not the
+    # smaller end-of-run net growth, and nothing is bought on the dark days.
+    ds, x0, peak, end = _exponential_culture()
+    farm_t = 5000.0 * 1e-6 * 0.25  # g m-3 of culture -> t over test_bill's farm
+    bill = B.scenario_bill(ds, _scenario(), "p")
+    jan = bill.monthly.loc["Jan"]
+    fn, fp = biomass_composition()["n_fraction"], biomass_composition()["p_fraction"]
+    assert peak == pytest.approx(x0 * np.exp(4.0), rel=1e-15)
+    assert jan["nutrient_biomass_t"] == pytest.approx((peak - x0) * farm_t, rel=1e-12)
+    assert jan["n_t"] == pytest.approx((peak - x0) * farm_t * fn, rel=1e-12)
+    assert jan["p_t"] == pytest.approx((peak - x0) * farm_t * fp, rel=1e-12)
+    assert (end - x0) < (peak - x0)  # a plain sum would have bought less than was held
+    # carbon on gross growth: mu / (mu - m) = 1.25 times the net growth of the growth days
+    assert jan["uptake_biomass_t"] == pytest.approx(1.25 * (peak - x0) * farm_t,
+                                                    rel=1e-12)
+    # nothing is bought on the dark days
+    daily = B.purchases(ds["gross_growth"].values[0] - ds["respiration"].values[0])
+    assert np.all(daily[:, 10:] == 0.0) and np.all(daily >= 0.0)
+
+
+def test_purchases_are_the_running_maximum_of_cumulative_uptake():
+    # by hand: uptake 3, -1, 2, -5, 4  -> cumulative 3, 2, 4, -1, 3 -> running max of
+    # max(0, .) 3, 3, 4, 4, 4 -> purchases 3, 0, 1, 0, 0
+    got = B.purchases(np.array([[3.0, -1.0, 2.0, -5.0, 4.0]]))
+    assert got.tolist() == [[3.0, 0.0, 1.0, 0.0, 0.0]]
+    u = np.random.default_rng(1).uniform(0, 5, (3, 20))
+    assert np.allclose(B.purchases(u), u, rtol=0, atol=1e-12)  # never negative: as is
+
+
+def test_retired_uptake_basis_names_its_replacements(tmp_path):
+    path = tmp_path / "s.toml"
+    text = DEMO.read_text().replace('carbon_basis = "gross_growth"',
+                                    'uptake_basis = "gross_growth"')
+    weather = (DEMO.parent.parent / "weather" / "kestrel_flats.epw").as_posix()
+    path.write_text(text.replace('"../weather/kestrel_flats.epw"', f'"{weather}"'))
+    with pytest.raises(InputError, match="inputs.carbon_basis.*inputs.nutrient_basis"):
+        load_scenario(path)
 
 
 def test_pricing_arithmetic_is_exact():

@@ -7,10 +7,16 @@ tonne of product is given per member, so its P50/P90 come from the ensemble.
 
 Bases (each line of the bill states its own):
 
-- carbon, nitrogen and phosphorus follow the biomass the ponds take up: gross growth
-  (``inputs.uptake_basis = "gross_growth"``: everything photosynthesis formed, including
-  what is later respired, lost in crashes or left by the harvester) or net growth (gross
-  less respiration). N and P bought are the uptake less the recycled share.
+- carbon follows the biomass photosynthesis fixed (``inputs.carbon_basis``, default
+  ``"gross_growth"``: respired carbon leaves as CO2 and is counted as lost), nitrogen and
+  phosphorus the biomass the ponds keep (``inputs.nutrient_basis``, default
+  ``"net_growth"`` = gross growth less respiration): the growth model's respiration is a
+  first-order loss of standing biomass that removes nothing from the pond, so the N and
+  P of respired biomass stay dissolved and are taken up again. Net growth equals what is
+  harvested, lost in crashes, salvaged or left standing (the engine's ledger). Purchases
+  follow the running maximum of cumulative uptake (:func:`purchases`), so what net-loss
+  days release offsets later uptake. N and P bought are that uptake less the recycled
+  share.
 - product (the per-tonne denominator) is the biomass recovered by harvest (``harvested``,
   after the recovery efficiency).
 - makeup water = (evaporation − rain, floored at zero day by day) + harvested medium not
@@ -192,6 +198,28 @@ def _member_day(da: xr.DataArray, members: int) -> np.ndarray:
     return np.broadcast_to(values, (members, values.shape[-1]))
 
 
+def purchases(uptake: np.ndarray) -> np.ndarray:
+    """Daily purchases that meet a daily uptake which may be negative on some days.
+
+    Parameters
+    ----------
+    uptake : ndarray, shape (member, day)
+        Uptake per day (negative where more is released than taken up).
+
+    Returns
+    -------
+    ndarray, shape (member, day)
+        Purchases, never negative: the day-to-day increase of the running maximum of
+        cumulative uptake, ``P_t = max(0, U_1, ..., U_t) - max(0, U_1, ..., U_{t-1})``
+        with ``U_t`` the cumulative uptake. What a net-loss day releases stays in the
+        medium and is used before anything is bought again. For an uptake that is never
+        negative, the purchases are the uptake itself.
+    """
+    cum = np.cumsum(uptake, axis=-1)
+    peak = np.maximum.accumulate(np.maximum(cum, 0.0), axis=-1)
+    return np.diff(peak, axis=-1, prepend=0.0)
+
+
 def daily_quantities(ds: xr.Dataset, policy: str, inputs: Inputs, *, area_m2: float,
                      count: int, depth_m: float) -> tuple[dict, list, dict, list]:
     """Whole-farm quantities per member and day for one policy.
@@ -210,7 +238,8 @@ def daily_quantities(ds: xr.Dataset, policy: str, inputs: Inputs, *, area_m2: fl
     Returns
     -------
     quantities : dict of name -> ndarray (member, day)
-        ``product_t``, ``uptake_biomass_t``, ``co2_t``, ``n_t``, ``p_t``, one
+        ``product_t``, ``uptake_biomass_t`` (carbon basis), ``nutrient_biomass_t``
+        (N and P basis), ``co2_t``, ``n_t``, ``p_t``, one
         ``<fertiliser>_t`` per product, ``makeup_water_m3``, ``harvest_volume_m3``,
         ``mixing_MWh``, ``harvest_MWh``, ``harvests``.
     lines : list of Line
@@ -234,19 +263,22 @@ def daily_quantities(ds: xr.Dataset, policy: str, inputs: Inputs, *, area_m2: fl
     comp = biomass_composition(inputs.composition_formula, inputs.carbon_fraction,
                                inputs.n_fraction, inputs.p_fraction)
     gross = _member_day(sel["gross_growth"], members)
-    if inputs.uptake_basis == "net_growth":
-        uptake = gross - _member_day(sel["respiration"], members)
-        basis = "net growth (gross growth less respiration), member mean"
-    else:
-        uptake = gross
-        basis = ("gross growth (all biomass formed, incl. what is respired, lost in "
-                 "crashes or to the harvester), member mean")
-    uptake_t = uptake * g_to_t
+    net = gross - _member_day(sel["respiration"], members)
+    texts = {"gross_growth": "gross growth (all biomass formed, incl. what is later "
+                             "respired, lost in crashes or to the harvester)",
+             "net_growth": "net growth (gross growth less respiration = biomass "
+                           "harvested, lost in crashes or left standing)"}
+    carbon_uptake = purchases(net if inputs.carbon_basis == "net_growth" else gross)
+    nutrient_uptake = purchases(net if inputs.nutrient_basis == "net_growth" else gross)
+    basis = f"{texts[inputs.carbon_basis]}, member mean"
+    nutrient_text = texts[inputs.nutrient_basis]
+    uptake_t = carbon_uptake * g_to_t
+    nutrient_t = nutrient_uptake * g_to_t
     product_t = _member_day(sel["harvested"], members) * g_to_t
     carbon_t = uptake_t * comp["carbon_fraction"]
     co2_t = carbon_t * CO2_PER_C * inputs.co2_supply_fraction / inputs.co2_utilisation
-    n_t = uptake_t * comp["n_fraction"] * (1.0 - inputs.n_recycle_fraction)
-    p_t = uptake_t * comp["p_fraction"] * (1.0 - inputs.p_recycle_fraction)
+    n_t = nutrient_t * comp["n_fraction"] * (1.0 - inputs.n_recycle_fraction)
+    p_t = nutrient_t * comp["p_fraction"] * (1.0 - inputs.p_recycle_fraction)
     products = fertiliser_plan(n_t, p_t, inputs.n_fertiliser, inputs.p_fertiliser)
 
     frac = _member_day(sel["harvest_fraction"], members)
@@ -283,8 +315,8 @@ def daily_quantities(ds: xr.Dataset, policy: str, inputs: Inputs, *, area_m2: fl
         harvest_mwh = harvest_m3 * inputs.harvest_kwh_per_m3 * 1e-3
     harvests = (frac > 0).astype(float) * count
 
-    quantities = {"product_t": product_t, "uptake_biomass_t": uptake_t, "co2_t": co2_t,
-                  "n_t": n_t, "p_t": p_t,
+    quantities = {"product_t": product_t, "uptake_biomass_t": uptake_t,
+                  "nutrient_biomass_t": nutrient_t, "co2_t": co2_t, "n_t": n_t, "p_t": p_t,
                   **{f"{name}_t": mass for name, mass in products.items()},
                   "makeup_water_m3": makeup_m3, "harvest_volume_m3": harvest_m3,
                   "mixing_MWh": mixing_mwh, "harvest_MWh": harvest_mwh,
@@ -295,9 +327,13 @@ def daily_quantities(ds: xr.Dataset, policy: str, inputs: Inputs, *, area_m2: fl
     lines = [
         Line("product", "product_t", "t AFDW", "biomass recovered by harvest (after "
              "recovery losses), member mean", "simulation: harvested"),
-        Line("biomass taken up", "uptake_biomass_t", "t AFDW", basis,
-             _source("inputs", "uptake_basis", inputs.uptake_basis)),
-        Line("CO2", "co2_t", "t CO2", f"uptake x C {comp['carbon_fraction']:.4f} x "
+        Line("biomass taken up", "uptake_biomass_t", "t AFDW", f"carbon basis: {basis}",
+             _source("inputs", "carbon_basis", inputs.carbon_basis)),
+        Line("biomass assimilated (N, P)", "nutrient_biomass_t", "t AFDW",
+             f"nutrient basis: {nutrient_text}, member mean",
+             _source("inputs", "nutrient_basis", inputs.nutrient_basis)),
+        Line("CO2", "co2_t", "t CO2", f"{inputs.carbon_basis.replace('_', ' ')} x C "
+             f"{comp['carbon_fraction']:.4f} x "
              f"{CO2_PER_C:.4f} t CO2/t C x supply share {inputs.co2_supply_fraction:g} / "
              f"utilisation {inputs.co2_utilisation:g}",
              f"{comp_src}; {_source('inputs', 'co2_utilisation', inputs.co2_utilisation)}",
@@ -309,7 +345,8 @@ def daily_quantities(ds: xr.Dataset, policy: str, inputs: Inputs, *, area_m2: fl
         lines.append(Line(
             name, f"{name}_t", "t product",
             f"supplies N {100 * comp['n_fraction']:.2f} % and P "
-            f"{100 * comp['p_fraction']:.2f} % of the biomass taken up, less recycle (N "
+            f"{100 * comp['p_fraction']:.2f} % of the {nutrient_text.split(' (')[0]}, "
+            f"less recycle (N "
             f"{inputs.n_recycle_fraction:g}, P {inputs.p_recycle_fraction:g}); the P "
             "product's N is credited",
             f"{comp_src}; {fert.basis}", key, "t-1", name))
@@ -549,4 +586,5 @@ def default_inputs() -> Inputs:
 
 
 __all__ = ["Bill", "COST_EXCEEDANCE", "Line", "cost_per_tonne_table", "daily_quantities",
-           "default_inputs", "describe", "pond_mixing", "price_lines", "scenario_bill"]
+           "default_inputs", "describe", "pond_mixing", "price_lines", "purchases",
+           "scenario_bill"]
