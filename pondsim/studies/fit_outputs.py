@@ -20,6 +20,15 @@ from pondsim.studies.scenario_copy import edit_toml
 #: Seed of the demo pilot file ``scenarios/kestrel_flats_pilot.csv``.
 DEMO_SEED = 20250320
 
+#: Largest relative standard error (SE / estimate) a fitted parameter may have for its
+#: SE to replace the scenario's ``[uncertainty]`` entry [1]. Assumption: beyond 100 %
+#: the pilot record does not identify the parameter (a lognormal of sigma 1 already
+#: spans a factor of 7 in its central 95 %), and the scenario's own entry is kept.
+MAX_FIT_RELATIVE_SE = 1.0
+#: Scale of t_opt_c for that test [degC]: its SE may be at most 10 degC (assumption; a
+#: cardinal optimum uncertain by more than that is not informed by the pilot).
+T_OPT_SCALE_C = 10.0
+
 
 def write_fitted_scenario(fit: PilotFit, scenario_path, out_path) -> Path:
     """Write a copy of the scenario file with the fitted strain parameters.
@@ -57,12 +66,18 @@ def write_fitted_scenario(fit: PilotFit, scenario_path, out_path) -> Path:
         strain["capacity_table_g_m3"] = [float(f"{v:.6g}") for v in table]
     updates = {"strain": strain}
     spread = {}
+    unidentified = []
     for name, value in est.items():
         if name not in UNCERTAIN_PARAMETERS:
             continue
         se = float(fit.table.at[name, "se"])
+        scale = abs(value) if name != "t_opt_c" else T_OPT_SCALE_C
         if not (math.isfinite(se) and se > 0):
             spread[name] = None
+        elif not se <= MAX_FIT_RELATIVE_SE * scale:
+            unidentified.append(f"{name} is not identified by the pilot record (SE "
+                                f"{se:.3g}, more than {MAX_FIT_RELATIVE_SE:.0%} of "
+                                f"{scale:.3g}): the scenario's [uncertainty] entry is kept")
         elif name == "t_opt_c" or value <= 0:
             spread[name] = {"distribution": "normal", "sd": float(f"{se:.4g}")}
         else:
@@ -84,7 +99,7 @@ def write_fitted_scenario(fit: PilotFit, scenario_path, out_path) -> Path:
               f"to {obs_name} ({stamp}).\n# Fitted ({fit.growth_form}): "
               + ", ".join(f"{n} = {v:.4g} ± {fit.table.at[n, 'se']:.2g}"
                           for n, v in est.items()) + "\n")
-    header += "".join(f"# WARNING: {w}\n" for w in fit.warnings)
+    header += "".join(f"# WARNING: {w}\n" for w in [*fit.warnings, *unidentified])
     header += ("# [uncertainty] entries of fitted parameters hold the fit's standard errors "
                "(independent draws;\n# the fit's correlations are in fit_report.txt).\n"
                if spread else "")
