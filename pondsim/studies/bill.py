@@ -554,15 +554,16 @@ def describe(bill: Bill) -> str:
     cost per tonne (P90 / P50 / P10 with their meaning)."""
     cur = bill.currency
     out = [f"inputs bill for '{bill.policy}' (whole farm, member means per year):"]
+    w = max(len(str(n)) for n in bill.lines.index)
     for name, r in bill.lines.iterrows():
         cost = {"yes": f"{r['cost_per_yr']:,.0f} {cur}", "not priced": "not priced"}.get(
             r["priced"], "")
-        out.append(f"  {name:>23}: {r['quantity_per_yr']:>12,.2f} {r['unit']:<13} "
+        out.append(f"  {name:>{w}}: {r['quantity_per_yr']:>12,.2f} {r['unit']:<13} "
                    f"{cost:>14}")
-        out.append(f"  {'':>23}  basis: {r['basis']}")
+        out.append(f"  {'':>{w}}  basis: {r['basis']}")
     if cur:
         year = bill.monthly.loc["year"]
-        out.append(f"  {'total':>23}: {year[f'total_cost_{cur}']:>12,.0f} {cur} per year")
+        out.append(f"  {'total':>{w}}: {year[f'total_cost_{cur}']:>12,.0f} {cur} per year")
         row = bill.cost_per_t.iloc[0]
         out.append(f"cost per tonne of product over {int(row['members'])} members "
                    f"[{cur} t-1], {row['confidence_pct']:.0f} % intervals in brackets "
