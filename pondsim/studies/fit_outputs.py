@@ -21,12 +21,12 @@ from pondsim.studies.scenario_copy import edit_toml
 DEMO_SEED = 20250320
 
 #: Largest relative standard error (SE / estimate) a fitted parameter may have for its
-#: SE to replace the scenario's ``[uncertainty]`` entry [1]. Assumption: beyond 100 %
-#: the pilot record does not identify the parameter (a lognormal of sigma 1 already
-#: spans a factor of 7 in its central 95 %), and the scenario's own entry is kept.
-MAX_FIT_RELATIVE_SE = 1.0
-#: Scale of t_opt_c for that test [degC]: its SE may be at most 10 degC (assumption; a
-#: cardinal optimum uncertain by more than that is not informed by the pilot).
+#: SE to become the copy's ``[uncertainty]`` spread [1]. Beyond it the SE is treated like
+#: an infinite one (the parameter's entry is removed, with a warning in the copy).
+#: Assumption: a lognormal sigma of 10 spans a factor of e^40 in its central 95 %, i.e.
+#: the pilot says nothing about the parameter (a badly dated record once gave 7e36).
+MAX_FIT_RELATIVE_SE = 10.0
+#: Scale of t_opt_c for that test [degC] (assumption): an SE above 10 x 10 degC.
 T_OPT_SCALE_C = 10.0
 
 
@@ -40,7 +40,8 @@ def write_fitted_scenario(fit: PilotFit, scenario_path, out_path) -> Path:
     Fitted parameters that ``[uncertainty]`` can carry get the fit's own uncertainty
     there (replacing what the scenario had): lognormal with sigma = SE/estimate for
     positive parameters, normal with sd = SE for t_opt_c; a parameter without a finite
-    SE loses its entry. Draws from these are independent, so the fit's correlations
+    SE, or with one beyond :data:`MAX_FIT_RELATIVE_SE` times its estimate, loses its
+    entry (said in the copy's header). Draws from these are independent, so the fit's correlations
     (reported beside) are not carried over. The copy is validated before it is written.
     Returns the path written.
     """
@@ -75,9 +76,10 @@ def write_fitted_scenario(fit: PilotFit, scenario_path, out_path) -> Path:
         if not (math.isfinite(se) and se > 0):
             spread[name] = None
         elif not se <= MAX_FIT_RELATIVE_SE * scale:
+            spread[name] = None
             unidentified.append(f"{name} is not identified by the pilot record (SE "
-                                f"{se:.3g}, more than {MAX_FIT_RELATIVE_SE:.0%} of "
-                                f"{scale:.3g}): the scenario's [uncertainty] entry is kept")
+                                f"{se:.3g}, more than {MAX_FIT_RELATIVE_SE:g} x "
+                                f"{scale:.3g}): its [uncertainty] entry is removed")
         elif name == "t_opt_c" or value <= 0:
             spread[name] = {"distribution": "normal", "sd": float(f"{se:.4g}")}
         else:
