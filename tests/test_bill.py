@@ -528,3 +528,62 @@ def test_demo_scenario_sets_inputs_and_demo_prices():
     assert s.inputs.composition_formula == "CO0.48H1.83N0.11P0.01"
     text = DEMO.read_text()
     assert "DEMO PRICES" in text and "NOT" in text  # invented, and says so
+
+
+def test_farm_cost_per_tonne_draws_each_pond_from_the_crash_replicates():
+    # Known answer. Two crash replicates per weather year: in r0 the pond yields P, in
+    # r1 it crashes and yields nothing; the costs are the same C in both (fixed mixing,
+    # same growth). A farm of 2 independent ponds (as the farm yield P50/P90 take them)
+    # yields P, P/2 or 0 with probabilities 1/4, 1/2, 1/4, so its cost per tonne is C/P,
+    # 2C/P or infinite: P50 = 2C/P and P90 (low cost) = C/P. Billing each member as if
+    # all ponds shared its history put half the members at infinity and P50 with them.
+    years, n_days = 400, 31
+    design = _design(years, 1, 2)
+    rep = design["replicate"].values
+    dates = pd.date_range("2025-01-01", periods=n_days, freq="D")
+    dims = ("policy", "member", "day")
+    shape = (1, rep.size, n_days)
+    harvested = np.where(rep[None, :, None] == 0, 5.0, 0.0) * np.ones(shape)
+    ds = xr.Dataset(
+        {"gross_growth": (dims, np.full(shape, 10.0)), "respiration": (dims, np.ones(shape)),
+         "harvested": (dims, harvested), "harvest_fraction": (dims, np.full(shape, 0.1)),
+         "evaporation": (("day",), np.full(n_days, 5.0)), "rain": (("day",), np.zeros(n_days))},
+        coords={"policy": ["p"], "member": design["member"].values,
+                "weather_year": ("member", design["weather_year"].values),
+                "draw": ("member", design["draw"].values), "replicate": ("member", rep),
+                "day": np.arange(1, n_days + 1), "date": (("day",), dates.to_numpy())})
+
+    class TwoPonds:
+        area_m2, count, depth_m = 1000.0, 2, 0.25
+
+    scenario = type("S", (), {"pond": TwoPonds, "inputs": B.default_inputs(),
+                              "prices": PRICES})()
+    bill = B.scenario_bill(ds, scenario, "p")
+    c_over_p = bill.monthly.loc["year", "total_cost_EUR"] / (
+        bill.monthly.loc["year", "product_t"] * 2)  # member mean product is P / 2
+    row = bill.cost_per_t.iloc[0]
+    assert row["P50_EUR_per_t"] == pytest.approx(2 * c_over_p, rel=1e-9)
+    assert row["P90_EUR_per_t"] == pytest.approx(c_over_p, rel=1e-9)
+    assert np.isinf(row["P10_EUR_per_t"])
+    share = np.isinf(bill.member_cost_per_t).mean()
+    assert share == pytest.approx(0.25, abs=0.05)  # both ponds crashed: 1/4
+    # without crash differences the farm's cost per tonne is every member's exactly
+    same = ds.assign(harvested=(dims, np.full(shape, 5.0)))
+    flat = B.scenario_bill(same, scenario, "p")
+    assert np.allclose(flat.member_cost_per_t, flat.member_cost_per_t[0], rtol=1e-12)
+    assert flat.member_cost_per_t[0] == pytest.approx(
+        flat.monthly.loc["year", "total_cost_EUR"] / flat.monthly.loc["year", "product_t"],
+        rel=1e-12)
+
+
+def test_member_cube_without_design_coordinates_keeps_every_member():
+    # a `run`'s results carry no weather_year / draw / replicate: its members are the
+    # crash replicates of one cell (they used to collapse onto one cell silently)
+    from pondsim.studies.quantiles import member_cube
+
+    ds = xr.Dataset(coords={"member": np.arange(5)})
+    cube = member_cube(np.arange(10.0).reshape(2, 5), ds)
+    assert cube.shape == (2, 1, 1, 5) and cube[1, 0, 0].tolist() == [5, 6, 7, 8, 9]
+    twice = _design(2, 1, 2).assign_coords(replicate=("member", [0, 0, 1, 1]))
+    with pytest.raises(InputError, match="share a weather year"):
+        member_cube(np.zeros((1, 4)), twice)

@@ -171,7 +171,9 @@ class Bill:
         only 10 %), each with a 95 % interval that respects the ensemble's nesting (see
         :func:`cost_per_tonne_table`); None when not priced.
     member_cost_per_t : numpy.ndarray or None
-        Annual cost per tonne of product of every member [currency t-1].
+        Annual cost per tonne of product of the farm in each realisation (one per
+        member, its ponds drawn from the member's crash replicates, see
+        :func:`farm_cost_per_tonne`) [currency t-1].
     notes : list of str
     mixing : dict
         Hydraulics of one pond (:func:`pond_mixing`).
@@ -453,17 +455,19 @@ def scenario_bill(ds: xr.Dataset, scenario, policy: str, *, seed: int = 0) -> Bi
                 product > 0, table[f"total_cost_{currency}"] / product, np.inf)
             annual_product = monthly["product_t"].sum(axis=1)
             annual_cost = total.sum(axis=1)
-            member_cost_t = np.where(annual_product > 0, annual_cost / annual_product,
-                                     np.inf)
-        per_t = cost_per_tonne_table(member_cost_t, currency, ds, seed=seed)
+        unc = getattr(scenario, "uncertainty", None)
+        farm = farm_cost_per_tonne(annual_cost, annual_product, ds, pond.count,
+                                   getattr(unc, "farm_crash_correlation", 0.0), seed=seed)
+        member_cost_t = farm.ravel()
+        per_t = cost_per_tonne_table(farm, currency, seed=seed)
         unpriced = sorted({line.price_key for line in lines
                            if line.price_key and getattr(prices, line.price_key) is None})
         if unpriced:
             notes.append("not priced: " + ", ".join(f"prices.{k}" for k in unpriced)
                          + " (left out of the total)")
         if np.isinf(member_cost_t).any():
-            notes.append(f"{int(np.isinf(member_cost_t).sum())} member(s) yield no "
-                         "product: their cost per tonne is infinite")
+            notes.append(f"{int(np.isinf(member_cost_t).sum())} farm realisation(s) yield "
+                         "no product: their cost per tonne is infinite")
     else:
         notes.append("not priced: the scenario has no [prices] section")
 
@@ -485,6 +489,54 @@ def scenario_bill(ds: xr.Dataset, scenario, policy: str, *, seed: int = 0) -> Bi
                 member_cost_per_t=member_cost_t, mixing=mixing, notes=notes)
 
 
+def farm_cost_per_tonne(annual_cost, annual_product, design: xr.Dataset | None,
+                        count: int, correlation: float = 0.0, *,
+                        seed: int | None = 0) -> np.ndarray:
+    """Annual cost per tonne of the whole farm, one realisation per member.
+
+    Parameters
+    ----------
+    annual_cost, annual_product : array-like, shape (n_member,)
+        A member's farm total [currency], [t]: its one pond's trajectory for all
+        ``count`` ponds.
+    design : xarray.Dataset or None
+        Member coordinates (:func:`~pondsim.studies.quantiles.member_cube`); None: all
+        members are crash replicates of one weather year and draw.
+    count : int
+        Ponds in the farm.
+    correlation : float [1]
+        Crash correlation between ponds (``uncertainty.farm_crash_correlation``).
+    seed : int, optional
+
+    Returns
+    -------
+    ndarray, shape (1, n_years, n_draws, n_replicates) [currency t-1]
+        ``sum_i cost_i / sum_i product_i`` over the farm's ponds, each pond taking the
+        crash history of one of its cell's replicates exactly as the farm yield does
+        (:func:`pondsim.studies.outlook.farm_totals`, the same draws for cost and
+        product); ``inf`` where the farm yields nothing.
+
+    Notes
+    -----
+    A member's bill treats every pond of the farm as that member's pond, i.e. all ponds
+    crash together; for means that changes nothing, but for P10/P90 it would stretch the
+    cost per tonne as if the ponds' crashes were perfectly correlated, while the farm's
+    yield P50/P90 use independent (or ``correlation``-linked) ponds. Without crash
+    differences between replicates the farm's value is the member's exactly.
+    """
+    from pondsim.studies.outlook import farm_totals
+
+    per_pond = np.stack([np.asarray(annual_cost, dtype=float),
+                         np.asarray(annual_product, dtype=float)]) / count
+    cube = member_cube(per_pond, design) if design is not None else \
+        per_pond.reshape(2, 1, 1, -1)
+    cost, product = farm_totals(cube, count, correlation, seed=seed)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        out = np.where(product > 1e-12 * np.abs(cube[1]).max(initial=0.0) * count,
+                       cost / product, np.inf)
+    return out[None]
+
+
 def cost_per_tonne_table(member_cost_t, currency: str, design: xr.Dataset | None = None,
                          *, confidence: float = CONFIDENCE,
                          seed: int | None = 0) -> pd.DataFrame:
@@ -492,8 +544,11 @@ def cost_per_tonne_table(member_cost_t, currency: str, design: xr.Dataset | None
 
     Parameters
     ----------
-    member_cost_t : array-like, shape (n_member,) [currency t-1]
-        Annual cost per tonne of every member; ``inf`` for a member without product.
+    member_cost_t : array-like, shape (n_member,) or (1, n_years, n_draws, n_replicates)
+        [currency t-1]
+        Annual cost per tonne of every member (or farm realisation); ``inf`` without
+        product. A 4-D array is taken as already arranged by the ensemble's design
+        (:func:`farm_cost_per_tonne`).
     currency : str
     design : xarray.Dataset, optional
         The results whose member coordinates ``weather_year``, ``draw`` and
@@ -523,7 +578,9 @@ def cost_per_tonne_table(member_cost_t, currency: str, design: xr.Dataset | None
     towards such members is infinite.
     """
     x = np.asarray(member_cost_t, dtype=float)
-    if design is not None:
+    if x.ndim == 4:
+        cube, x = x, x.ravel()
+    elif design is not None:
         cube = member_cube(x[None, :], design)
     else:
         cube = x.reshape(1, 1, 1, -1)
@@ -587,5 +644,6 @@ def default_inputs() -> Inputs:
 
 
 __all__ = ["Bill", "COST_EXCEEDANCE", "Line", "cost_per_tonne_table", "daily_quantities",
-           "default_inputs", "describe", "pond_mixing", "price_lines", "purchases",
+           "default_inputs", "describe", "farm_cost_per_tonne", "pond_mixing", "price_lines",
+           "purchases",
            "scenario_bill"]

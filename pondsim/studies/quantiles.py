@@ -27,6 +27,7 @@ Two intervals for a quantile estimated from a Monte Carlo ensemble:
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
 import xarray as xr
 from scipy import stats
 
@@ -190,6 +191,13 @@ def member_cube(values: np.ndarray, ds: xr.Dataset) -> np.ndarray:
         return np.unique(v, return_inverse=True)[1]
 
     iy, idr, ir = index("weather_year"), index("draw"), index("replicate")
+    if "replicate" not in ds.coords:
+        # members without a replicate number: the members of each (year, draw) cell are
+        # its replicates, in member order (e.g. a `run`: crash replicates of one year)
+        ir = pd.DataFrame({"y": iy, "d": idr}).groupby(["y", "d"]).cumcount().to_numpy()
+    if len(np.unique(np.stack([iy, idr, ir]), axis=1)[0]) != member.size:
+        raise InputError("two members share a weather year, draw and replicate",
+                         field="member")
     cube = np.full((values.shape[0], iy.max() + 1, idr.max() + 1, ir.max() + 1), np.nan)
     cube[:, iy, idr, ir] = values
     if np.isnan(cube).any():
