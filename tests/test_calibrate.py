@@ -446,6 +446,80 @@ def test_cmd_fit_curve_mode(tmp_path, carlson):
     assert (out / "fit.png").exists()
 
 
+def test_cmd_fit_writes_a_whole_output_set(tmp_path, carlson, monkeypatch):
+    """`pondsim fit` writes one output set (manifest + README, moved into place whole); a
+    fit that fails while writing leaves the previous set byte for byte; a folder that is
+    a file is refused before any fitting."""
+    import json
+
+    from pondsim.results import files as F
+    from pondsim.studies import fit_command
+
+    t, n = carlson
+    path = tmp_path / "batch.csv"
+    pd.DataFrame({"time": t, "density_g_m3": n}).to_csv(path, index=False)
+    out = tmp_path / "curve"
+    assert cal.cmd_fit(_parse(["fit", str(path), "--model", "curve", "--out", str(out)])) == 0
+    assert F.verify_output_set(out) == []
+    manifest = json.loads((out / F.MANIFEST_NAME).read_text())
+    assert manifest["command"] == "fit"
+    assert set(manifest["files"]) == {"fit_parameters.csv", "fit_report.txt", "fit.png",
+                                      F.README_NAME}
+    before = {p.name: p.read_bytes() for p in out.iterdir() if not p.name.startswith(".")}
+
+    def half_a_figure(t, n, fit, png, *args):
+        Path(png).write_bytes(b"\x89PNG half")
+        raise OSError(28, "No space left on device")
+
+    monkeypatch.setattr(fit_command, "plot_curve", half_a_figure)
+    with pytest.raises(OSError):
+        cal.cmd_fit(_parse(["fit", str(path), "--model", "curve", "--out", str(out)]))
+    assert {p.name: p.read_bytes() for p in out.iterdir()
+            if not p.name.startswith(".")} == before
+    assert F.verify_output_set(out) == []
+    assert [p.name for p in out.iterdir() if p.name.startswith(".")] == [F.LOCK_NAME]
+
+    def no_fit(*args, **kwargs):
+        raise AssertionError("fitted before checking the output folder")
+
+    monkeypatch.setattr(fit_command, "fit_logistic_curve", no_fit)
+    monkeypatch.setattr(fit_command, "fit_pilot", no_fit)
+    blocker = tmp_path / "a_file"
+    blocker.write_text("not a folder")
+    with pytest.raises(F.OutputError, match="is a file"):
+        cal.cmd_fit(_parse(["fit", str(path), "--model", "curve", "--out", str(blocker)]))
+    with pytest.raises(F.OutputError, match="is a file"):
+        cal.cmd_fit(_parse(["fit", str(PILOT), "--scenario", str(SCENARIO), "--out",
+                            str(blocker)]))
+
+
 def test_cmd_fit_needs_a_scenario(tmp_path):
     with pytest.raises(InputError, match="--scenario"):
         cal.cmd_fit(_parse(["fit", str(PILOT), "--out", str(tmp_path)]))
+
+
+def test_unidentified_parameter_keeps_the_scenarios_uncertainty(tmp_path, scenario):
+    # A short or badly dated pilot record can leave a parameter unidentified (SE many
+    # times its estimate: a day-first record read month-first once gave maintenance an
+    # SE/estimate of 7e36). Its SE must not become the copy's [uncertainty] entry (the
+    # copy then failed its own range check and the whole fit ended in an error about a
+    # file the user never wrote): like an infinite SE, the entry goes, and the copy says
+    # why; an SE of 1.39 x the estimate (the demo pilot's light parameter) still counts.
+    from types import SimpleNamespace
+
+    from pondsim.studies.fit_outputs import write_fitted_scenario
+
+    est = {"mu_max_per_d": 1.9, "maintenance_per_d": 1e-6, "k_biomass_m2_g": 0.1}
+    table = pd.DataFrame({"se": [0.1, 7.0, 0.139]}, index=list(est))
+    obs = SimpleNamespace(path=tmp_path / "pilot.csv")
+    model = SimpleNamespace(scenario=scenario, obs=obs,
+                            dates=lambda: pd.DatetimeIndex(["2025-04-01"]))
+    fit = SimpleNamespace(estimates=est, table=table, growth_form="self_shading",
+                          warnings=[], model=model)
+    path = write_fitted_scenario(fit, SCENARIO, tmp_path / "copy.toml")
+    copy = load_scenario(path)
+    spread = {u.parameter: u for u in copy.uncertainty.parameters}
+    assert "maintenance_per_d" not in spread
+    assert spread["mu_max_per_d"].sigma == pytest.approx(0.1 / 1.9, rel=1e-3)
+    assert spread["k_biomass_m2_g"].sigma == pytest.approx(1.39, rel=1e-3)
+    assert "maintenance_per_d is not identified by the pilot record" in path.read_text()

@@ -132,16 +132,6 @@ class Crash:
     salvage_sellable: bool
     max_season_probability: float
 
-    # Names of the hazard before it had named causes, read by the HTML report until it
-    # shows the causes: the background hazard, and the largest weather term's value.
-    @property
-    def base_hazard_per_d(self) -> float:
-        return self.background_per_d
-
-    @property
-    def stress_hazard_per_d(self) -> float:
-        return self.starvation_hazard_per_d
-
 
 @dataclass(frozen=True)
 class Season:
@@ -197,7 +187,8 @@ class Inputs:
     carbon_fraction: float | None = None
     n_fraction: float | None = None
     p_fraction: float | None = None
-    uptake_basis: str = "gross_growth"
+    carbon_basis: str = "gross_growth"
+    nutrient_basis: str = "net_growth"
     co2_supply_fraction: float = 1.0
     co2_utilisation: float = 0.7
     n_fertiliser: str = "urea"
