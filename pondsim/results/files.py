@@ -135,11 +135,14 @@ def save(result: xr.Dataset, path: str | Path) -> Path:
 
     The file is built in memory (below :data:`IN_MEMORY_NETCDF_BYTES`) and written with one
     plain ``write``, so that a full disk gives a clean error rather than HDF5 failing
-    part-way through its own writes.
+    part-way through its own writes. A file-backed (dask) Dataset, e.g. an outlook held in
+    blocks on disk, is streamed to the file block by block instead, so that writing it
+    does not load it whole.
     """
     encoding = {name: {"zlib": True, "complevel": 4, "shuffle": True}
                 for name, var in result.data_vars.items() if var.dtype.kind in "fiu"}
-    if result.nbytes < IN_MEMORY_NETCDF_BYTES:
+    lazy = any(var.chunks is not None for var in result.variables.values())
+    if result.nbytes < IN_MEMORY_NETCDF_BYTES and not lazy:
         def write(tmp):
             data = result.to_netcdf(engine="h5netcdf", encoding=encoding)
             with open(tmp, "wb") as fh:
