@@ -132,11 +132,12 @@ def _light_and_water(forcing: pd.DataFrame, scenario: Scenario) -> pd.DataFrame:
 
 
 #: Weather years whose light and water tables are kept for reuse within a process
-#: (~1.8 MB each): a study that simulates the same years again (``tune`` three times,
-#: ``outlook`` then its Sobol step, ``report``) computes each year's energy balance once.
-#: Kept small so that memory does not grow with an outlook's weather years (each year is
-#: used once there; recomputing one costs ~0.1 s since the heat balance is compiled).
-PHYSICS_CACHE_SIZE = 24
+#: (~1.8 MB each): a study that simulates the same year again (the scenario's own year in
+#: ``compare``, the Sobol step and ``report``; a file's real years in every outlook round)
+#: computes its energy balance once. Kept small so that memory does not grow with an
+#: outlook's synthetic weather years (each is used once; recomputing a year costs
+#: ~0.1 s since the heat balance is compiled).
+PHYSICS_CACHE_SIZE = 8
 _PHYSICS_CACHE: OrderedDict[str, pd.DataFrame] = OrderedDict()
 
 
@@ -354,8 +355,10 @@ BYTES_PER_SERIES_DAY = 140
 #: Peak bytes of a run that do not grow with the members: the hourly forcing, light and
 #: water tables and driver arrays of one driver set (weather year x draw) and the
 #: Dataset's per-day variables; measured with tracemalloc on the demo as the intercept of
-#: peak against members (about 14 MB at 4 policies), rounded up.
-BYTES_PER_DRIVER_SET = 16_000_000
+#: peak against members: about 14 MB while the heat balance was a loop over Python lists,
+#: 3-13 MB since it is compiled (the upper value when xarray writes netCDF to memory
+#: without dask loaded; 20 and 200 members measured).
+BYTES_PER_DRIVER_SET = 6_000_000
 
 
 def memory_estimate(scenario: Scenario, members: int, n_sets: int = 1) -> int:
