@@ -446,6 +446,53 @@ def test_cmd_fit_curve_mode(tmp_path, carlson):
     assert (out / "fit.png").exists()
 
 
+def test_cmd_fit_writes_a_whole_output_set(tmp_path, carlson, monkeypatch):
+    """`pondsim fit` writes one output set (manifest + README, moved into place whole); a
+    fit that fails while writing leaves the previous set byte for byte; a folder that is
+    a file is refused before any fitting."""
+    import json
+
+    from pondsim.results import files as F
+    from pondsim.studies import fit_command
+
+    t, n = carlson
+    path = tmp_path / "batch.csv"
+    pd.DataFrame({"time": t, "density_g_m3": n}).to_csv(path, index=False)
+    out = tmp_path / "curve"
+    assert cal.cmd_fit(_parse(["fit", str(path), "--model", "curve", "--out", str(out)])) == 0
+    assert F.verify_output_set(out) == []
+    manifest = json.loads((out / F.MANIFEST_NAME).read_text())
+    assert manifest["command"] == "fit"
+    assert set(manifest["files"]) == {"fit_parameters.csv", "fit_report.txt", "fit.png",
+                                      F.README_NAME}
+    before = {p.name: p.read_bytes() for p in out.iterdir() if not p.name.startswith(".")}
+
+    def half_a_figure(t, n, fit, png, *args):
+        Path(png).write_bytes(b"\x89PNG half")
+        raise OSError(28, "No space left on device")
+
+    monkeypatch.setattr(fit_command, "plot_curve", half_a_figure)
+    with pytest.raises(OSError):
+        cal.cmd_fit(_parse(["fit", str(path), "--model", "curve", "--out", str(out)]))
+    assert {p.name: p.read_bytes() for p in out.iterdir()
+            if not p.name.startswith(".")} == before
+    assert F.verify_output_set(out) == []
+    assert [p.name for p in out.iterdir() if p.name.startswith(".")] == [F.LOCK_NAME]
+
+    def no_fit(*args, **kwargs):
+        raise AssertionError("fitted before checking the output folder")
+
+    monkeypatch.setattr(fit_command, "fit_logistic_curve", no_fit)
+    monkeypatch.setattr(fit_command, "fit_pilot", no_fit)
+    blocker = tmp_path / "a_file"
+    blocker.write_text("not a folder")
+    with pytest.raises(F.OutputError, match="is a file"):
+        cal.cmd_fit(_parse(["fit", str(path), "--model", "curve", "--out", str(blocker)]))
+    with pytest.raises(F.OutputError, match="is a file"):
+        cal.cmd_fit(_parse(["fit", str(PILOT), "--scenario", str(SCENARIO), "--out",
+                            str(blocker)]))
+
+
 def test_cmd_fit_needs_a_scenario(tmp_path):
     with pytest.raises(InputError, match="--scenario"):
         cal.cmd_fit(_parse(["fit", str(PILOT), "--out", str(tmp_path)]))

@@ -84,12 +84,19 @@ def test_bad_output_folder_is_refused_before_any_computation(kind, tmp_path, mon
     def no_compute(*a, **k):
         raise AssertionError("computed before checking the output folder")
 
+    import pondsim.report.build as rep
+    import pondsim.studies.fit_command as fit
+
     monkeypatch.setattr(sim, "simulate", no_compute)
+    monkeypatch.setattr(rep, "run_study", no_compute)
+    monkeypatch.setattr(fit, "fit_pilot", no_compute)
     (tmp_path / "a_file").write_text("x")
     out = {"file": tmp_path / "a_file", "under_a_file": tmp_path / "a_file" / "sub",
            "empty_name": " "}[kind]
-    for command in ("run", "compare", "outlook", "tune"):
-        assert cli.main([command, str(DEMO), "--out", str(out)]) == 2
+    pilot = ROOT / "scenarios" / "kestrel_flats_pilot.csv"
+    for argv in (["run", DEMO], ["compare", DEMO], ["outlook", DEMO], ["tune", DEMO],
+                 ["report", DEMO], ["fit", pilot, "--scenario", DEMO]):
+        assert cli.main([*map(str, argv), "--out", str(out)]) == 2
         line = _one_error_line(capsys.readouterr().err)
         assert "--out" in line
     assert (tmp_path / "a_file").read_text() == "x"

@@ -27,6 +27,7 @@ import pytest
 from pondsim import __version__
 from pondsim.errors import InputError
 from pondsim.report import build as rep
+from pondsim.results import files as F
 from pondsim.scenario import SCHEMA, load_scenario, relocate_text
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -242,13 +243,17 @@ def test_rerun_reuses_results_and_page_differs_only_in_run_date(small_scenario, 
     for module, name in ((outlook, "run_outlook"), (outlook, "simulate"),
                          (simulate, "simulate"), (rep, "run_study")):
         monkeypatch.setattr(module, name, no_simulation)
-    mtimes = {p.name: p.stat().st_mtime_ns for p in report_dir.iterdir() if p.name
-              != "report.html"}
+    # The page and the output set's own README and manifest are new; every result file
+    # is carried into the new set unchanged.
+    renewed = {"report.html", F.README_NAME, F.MANIFEST_NAME}
+    mtimes = {p.name: p.stat().st_mtime_ns for p in report_dir.iterdir()
+              if p.name not in renewed}
     run = rep.make_report(small_scenario, report_dir, years=2, draws=2, members=2,
                           run_date="2000-01-01T00:00:00+00:00")
     assert run.reused
     assert {p.name: p.stat().st_mtime_ns for p in report_dir.iterdir()
-            if p.name != "report.html"} == mtimes
+            if p.name not in renewed} == mtimes
+    assert F.verify_output_set(report_dir) == []
     new = (report_dir / "report.html").read_text(encoding="utf-8")
     old_lines, new_lines = page_text.splitlines(), new.splitlines()
     assert len(old_lines) == len(new_lines)
@@ -299,7 +304,9 @@ def test_every_parameter_with_unit_value_and_source(small_scenario, report_dir, 
     assert keyed[("pond", "depth_m")]["value"] == "0.25"
     default = keyed[("pond", "water_emissivity")]
     assert default["source"] == "default"
-    assert default["note"] == SCHEMA["pond"]["water_emissivity"].doc
+    # The schema's doc, labelled ASSUMPTION when it names no source.
+    assert default["note"].startswith(SCHEMA["pond"]["water_emissivity"].doc)
+    assert "ASSUMPTION" in default["note"]
     assert "ASSUMPTION" in keyed[("crash", "background_per_d")]["note"]
     assert keyed[("option", "weather_years")]["value"] == "2"
     page = _parse(page_text)
@@ -449,21 +456,256 @@ def test_summary_answers_from_the_outputs(small_scenario, report_dir, page_text,
         assert f"interval: {NOT_AVAILABLE}" not in body
 
 
-def test_summary_reads_a_priced_bill(small_scenario, report_dir, tmp_path):
-    """A bill with the priced columns (``total_cost_<currency>``, ``cost_per_t_<...>``)
-    gives the bill's headline cost; without them the summary says it is not priced."""
+def test_summary_reads_a_priced_bill(small_scenario, report_dir, page_text):
+    """The demo is priced: the summary gives the annual cost and the cost per tonne's P50
+    and conservative P10, the numbers of inputs_bill.csv and inputs_cost_per_t.csv."""
+    from pondsim.report.html import _num
+
+    bill = _csv(report_dir / "inputs_bill.csv", index_col="month")
+    per_t = _csv(report_dir / "inputs_cost_per_t.csv", index_col="figure").iloc[0]
+    summary = re.search(r'<section id="summary".*?</section>', page_text, re.S).group(0)
+    assert (f"priced inputs {_num(bill.loc['year', 'total_cost_USD'], 0)} USD per year"
+            in summary)
+    assert (f"P50 {_num(per_t['P50_USD_per_t'], 0)} USD, conservative P10 "
+            f"{_num(per_t['P10_USD_per_t'], 0)}") in summary
+
+
+def _section_html(page_text: str, sid: str) -> str:
+    return re.search(rf'<section id="{sid}".*?</section>', page_text, re.S).group(0)
+
+
+def test_bill_lines_show_basis_source_and_cost_per_tonne(report_dir, page_text):
+    """Each line of inputs_bill_lines.csv is in the page with its basis and source; the
+    cost per tonne (P90/P50/P10) and the year's totals are the CSV numbers."""
+    import html
+
+    page = _parse(page_text)
+    lines = _csv(report_dir / "inputs_bill_lines.csv", index_col="line")
+    section = html.unescape(_section_html(page_text, "inputs"))
+    shown = {c["row"]["data-line"] for c in page.values if c["table"] == "bill-lines"}
+    assert shown == set(lines.index)
+    for name, r in lines.iterrows():
+        assert r["basis"] in section and r["source"] in section, name
+    assert "gross growth" in lines.loc["biomass taken up", "basis"]
+    assert "harvest" in lines.loc["product", "basis"]
+    for c in page.values:
+        if c["table"] == "bill-lines" and c["col"] == "cost_per_yr":
+            assert float(c["value"]) == lines.loc[c["row"]["data-line"], "cost_per_yr"]
+    per_t = _csv(report_dir / "inputs_cost_per_t.csv", index_col="figure").iloc[0]
+    cells = [c for c in page.values if c["table"] == "bill-cost-per-t"]
+    assert {c["row"]["data-level"] for c in cells} == {"P90", "P50", "P10"}
+    for c in cells:
+        assert float(c["value"]) == per_t[c["col"]]
+    # A cost's exceedance figures: P90 is the low (optimistic) one, P10 the high one.
+    assert per_t["P90_USD_per_t"] <= per_t["P50_USD_per_t"] <= per_t["P10_USD_per_t"]
+    bill = _csv(report_dir / "inputs_bill.csv", index_col="month")
+    year = {c["col"]: float(c["value"]) for c in page.values
+            if c["table"] == "bill-table" and c["row"].get("data-month") == "year"}
+    assert year["total_cost_USD"] == bill.loc["year", "total_cost_USD"]
+    # Pricing arithmetic: each priced line's cost = quantity x unit price.
+    priced = lines[lines["priced"] == "yes"]
+    assert len(priced) >= 5
+    np.testing.assert_allclose(priced["cost_per_yr"],
+                               priced["quantity_per_yr"] * priced["unit_price"], rtol=1e-5)
+
+
+def test_unpriced_scenario_says_not_priced(small_scenario, report_dir, tmp_path):
+    """A scenario without [prices]: the bill gives quantities, the page and the summary
+    say "not priced" and show no cost figure."""
+    import xarray as xr
+
     from pondsim.report.summary import NOT_AVAILABLE, summary_section
+    from pondsim.results.files import write_csv
+    from pondsim.scenario.model import Prices
+    from pondsim.studies.bill import scenario_bill
 
     manifest = json.loads((report_dir / rep.MANIFEST).read_text(encoding="utf-8"))
-    scenario = load_scenario(small_scenario)
-    plain = summary_section(report_dir, scenario, manifest)
-    assert f"cost: {NOT_AVAILABLE} (not priced)" in plain
-    copy = tmp_path / "priced"
+    scenario = load_scenario(small_scenario).replace(prices=Prices())
+    copy = tmp_path / "unpriced"
     shutil.copytree(report_dir, copy)
-    lines = (copy / "inputs_bill.csv").read_text(encoding="utf-8").splitlines()
-    lines[0] += ",total_cost_EUR,cost_per_t_EUR"  # plain CSV: the header is the first line
-    lines[1:] = [row + ",12345.0,678.9" for row in lines[1:]]
-    (copy / "inputs_bill.csv").write_text("\n".join(lines) + "\n", encoding="utf-8")
-    priced = summary_section(copy, scenario, manifest)
-    assert "priced inputs 12,345 EUR per year, 679 EUR per tonne of product" in priced
-    assert "not priced" not in priced
+    with xr.open_dataset(copy / "results.nc") as ds:
+        bill = scenario_bill(ds.load(), scenario, manifest["lead_policy"])
+    assert bill.cost_per_t is None
+    write_csv(bill.monthly, copy / "inputs_bill.csv")
+    write_csv(bill.lines, copy / "inputs_bill_lines.csv")
+    (copy / "inputs_cost_per_t.csv").unlink()
+    manifest["bill"]["notes"] = bill.notes
+    text = rep.build_page(copy, scenario, manifest, run_date="now")
+    section = _section_html(text, "inputs")
+    assert "Not priced: the scenario has no [prices] section" in section
+    assert 'id="bill-cost-per-t"' not in section and "total_cost_" not in section
+    assert "not priced: the scenario has no [prices] section" in section  # the bill's note
+    summary = summary_section(copy, scenario, manifest)
+    assert f"cost: {NOT_AVAILABLE} (not priced)" in summary
+
+
+def test_no_from_memory_text_and_every_default_sourced(small_scenario, report_dir,
+                                                       page_text):
+    """The issue's rule: every default cites a source or is labelled assumption, and no
+    "from memory" reaches the report (the code's own marker for an unchecked value)."""
+    import html
+
+    from pondsim.scenario import INPUTS_KEYS, PRICES_KEYS
+
+    text = html.unescape(page_text).lower()
+    assert "from memory" not in text and "not verified" not in text
+    table = _csv(report_dir / "assumptions.csv")
+    keyed = {(g, k): r for g, k, r in zip(table["group"], table["key"],
+                                          table.to_dict("records"), strict=True)}
+    for section, keys in (("inputs", INPUTS_KEYS), ("prices", PRICES_KEYS)):
+        for name in keys:
+            assert (section, name) in keyed, (section, name)
+    assert keyed[("prices", "currency")]["value"] == "USD"
+    assert keyed[("prices", "currency")]["source"] == "scenario"
+    assert keyed[("inputs", "co2_utilisation")]["source"] == "scenario"
+    sourced = re.compile(r"\b(1[89]|20)\d\d\b|assumption|common practice|definition|"
+                         r"IUPAC|ASTM|FAO", re.I)
+    checked = 0
+    for r in table.to_dict("records"):
+        try:
+            float(r["value"])
+        except ValueError:  # not set, a switch, a name or a list: no value assumed
+            continue
+        if r["source"] == "default":
+            assert sourced.search(str(r["note"])), (r["group"], r["key"], r["note"])
+            checked += 1
+    assert checked >= 20
+    # A doc that says "from memory" in the code is shown as an unchecked assumption.
+    assert "ASSUMPTION, source not checked" in keyed[("pond", "harbeck_prefactor")]["note"]
+
+
+def test_crash_section_names_causes_basis_and_salvage(small_scenario, report_dir,
+                                                       page_text):
+    import html
+
+    import xarray as xr
+
+    from pondsim.operations.crash import CAUSES
+    from pondsim.scenario.model import Crash
+
+    assert not hasattr(Crash, "stress_hazard_per_d")  # the retired aliases are gone
+    section = html.unescape(_section_html(page_text, "crash"))
+    for word in ("background", "starvation", "heat", "cold shock", "competing risks",
+                 "salvaged"):
+        assert word in section
+    assert "overshoot above K" not in section and "stress hazard" not in section
+    with xr.open_dataset(report_dir / "results.nc") as ds:
+        basis = ds.attrs["weather_basis"]
+        cause = ds["crash_cause"].values  # (policy, member, day)
+        policies = [str(p) for p in ds["policy"].values]
+        salvaged = ds["salvaged"].sum("day").mean("member").values
+        n_days = ds.sizes["day"]
+    assert "synthetic weather years" in basis and basis in section
+    assert section.count(basis) >= 2  # beside the tables and in the figure's caption
+    # Crashes per pond-year by cause, recomputed from the netCDF with numpy.
+    page = _parse(page_text)
+    cells = [c for c in page.values if c["table"] == "crash-causes"]
+    assert cells
+    for c in cells:
+        i = policies.index(c["row"]["data-policy"])
+        if c["col"] == "salvaged_t_ha_yr":
+            expected = salvaged[i] * 365 / n_days * 0.01  # g m-2 -> t ha-1
+        elif c["col"] == "all_crashes_per_pond_yr":
+            expected = (cause[i] > 0).sum(axis=1).mean() * 365 / n_days
+        else:
+            k = CAUSES.index(c["col"].removesuffix("_crashes_per_pond_yr")) + 1
+            expected = (cause[i] == k).sum(axis=1).mean() * 365 / n_days
+        assert float(c["value"]) == pytest.approx(expected, rel=1e-5, abs=1e-9)
+
+
+def test_pond_water_washout_dewatering_and_site_check(small_scenario, report_dir,
+                                                      page_text):
+    import html
+
+    import xarray as xr
+
+    scenario = load_scenario(small_scenario)
+    page = _parse(page_text)
+    with xr.open_dataset(report_dir / "results.nc") as ds:
+        above_max = ds["hours_above_t_max"].values
+        share = ds["harvest_fraction"].values  # (policy, member, day)
+        policies = [str(p) for p in ds["policy"].values]
+        washed = ds["washed_out"].values.max(axis=-1) > 0  # (policy, member)
+        site_check = ds.attrs["site_check"]
+    # Stress hours for the year: the daily hours summed over days (member means).
+    hours = above_max.mean(axis=0) if above_max.ndim == 2 else above_max
+    year = [c for c in page.values if c["table"] == "pond-water-table"
+            and c["row"]["data-month"] == "year" and c["col"] == "hours_above_t_max"]
+    assert float(year[0]["value"]) == pytest.approx(hours.sum(), rel=1e-5)
+    # Washout share per policy from the daily flags.
+    for c in page.values:
+        if c["table"] == "washout-table" and c["col"] == "washed_out_pct":
+            i = policies.index(c["row"]["data-policy"])
+            assert float(c["value"]) == pytest.approx(100 * washed[i].mean())
+    # Dewatering: 7-day trailing mean of the farm's daily volume, recomputed with pandas.
+    pond = scenario.pond
+    check = _csv(report_dir / "dewatering_check.csv", index_col=["policy", "season"])
+    for i, pol in enumerate(policies):
+        farm = pd.Series(share[i].mean(axis=0) * pond.volume_m3 * pond.count)
+        peak = farm.rolling(7, min_periods=1).mean().max()
+        assert check.loc[(pol, "year"), "peak_7d_mean_farm_m3_d"] == pytest.approx(
+            peak, rel=1e-5)
+        assert check.loc[(pol, "year"), "dewatering_farm_m3"] == pytest.approx(
+            farm.sum(), rel=1e-5)
+        cap = scenario.harvest.dewatering_capacity_m3_per_d
+        assert check.loc[(pol, "year"), "within_capacity"] == (
+            "yes" if peak <= cap * (1 + 1e-9) else "no")
+    # The site check's result, in the summary and beside the site.
+    text = html.unescape(page_text)
+    assert text.count(site_check) >= 2
+    manifest = json.loads((report_dir / rep.MANIFEST).read_text(encoding="utf-8"))
+    failed = {**manifest, "site_check": "FAILED: irradiance peak 1.02 h after solar noon"}
+    bad = html.unescape(rep.build_page(report_dir, scenario, failed, run_date="now"))
+    assert "WARNING: FAILED: irradiance peak 1.02 h" in bad
+    assert "WARNING: the site check failed" in bad
+
+
+def _snapshot(folder: Path) -> dict:
+    return {p.name: p.read_bytes() for p in folder.iterdir()
+            if p.is_file() and not p.name.startswith(".")}
+
+
+def test_report_killed_mid_write_leaves_the_previous_complete_set(small_scenario,
+                                                                    report_dir, tmp_path):
+    """SIGKILL while the report's files are being written: the folder keeps the previous
+    complete set byte for byte, and the next run clears what the killed one left."""
+    import signal
+    import subprocess
+    import sys
+    import time
+
+    folder = tmp_path / "report"
+    shutil.copytree(report_dir, folder)
+    before = _snapshot(folder)
+    assert F.verify_output_set(folder) == []
+    # A quick study (no uncertain parameters, one weather year) to be killed.
+    text = small_scenario.read_text(encoding="utf-8")
+    quick = tmp_path / "quick.toml"
+    quick.write_text("\n".join(ln for ln in text.splitlines() if "distribution =" not in ln)
+                     + "\n", encoding="utf-8")
+    quick_text = quick.read_text(encoding="utf-8")
+    quick.write_text(re.sub(r'path = "([^"]+)"', lambda m: 'path = "' + str(
+        (small_scenario.parent / m.group(1)).resolve()) + '"', quick_text, count=1),
+        encoding="utf-8")
+    env = {**os.environ, "PYTHONPATH": str(ROOT), "MPLCONFIGDIR": str(tmp_path)}
+    proc = subprocess.Popen([sys.executable, "-m", "pondsim", "report", str(quick), "--out",
+                             str(folder), "--years", "1", "--members", "1"], env=env,
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    staged = []
+    deadline = time.time() + 300
+    while time.time() < deadline and proc.poll() is None:
+        staged = [p for p in folder.glob(f"{F.STAGING_PREFIX}*/*") if p.name != "pid"]
+        if staged:
+            proc.send_signal(signal.SIGKILL)
+            break
+        time.sleep(0.005)
+    proc.communicate(timeout=120)
+    assert staged, "the report ended before anything was staged"
+    assert proc.returncode == -signal.SIGKILL
+    assert _snapshot(folder) == before and F.verify_output_set(folder) == []
+    assert list(folder.glob(f"{F.STAGING_PREFIX}*"))  # the killed run's staging is left
+    # The next run (reusing the previous results) cleans it and lands whole.
+    run = rep.make_report(small_scenario, folder, years=2, draws=2, members=2)
+    assert run.reused
+    assert not list(folder.glob(f"{F.STAGING_PREFIX}*"))
+    assert F.verify_output_set(folder) == []

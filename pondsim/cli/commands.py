@@ -8,8 +8,6 @@ from pathlib import Path
 
 from pondsim.cli.common import (
     _check_memory,
-    _check_out_first,
-    _out_dir,
     _output_set,
     _print_written,
     load_checked_scenario,
@@ -21,10 +19,7 @@ from pondsim.errors import InputError
 def cmd_fit(args) -> int:
     from pondsim.studies.calibrate import cmd_fit as run_fit
 
-    if getattr(args, "observations", None) and not getattr(args, "demo", False):
-        _check_out_first(Path(args.out) if getattr(args, "out", None) else
-                         Path("out") / f"{Path(args.observations).stem}_fit")
-    return run_fit(args)
+    return run_fit(args)  # an output set: the folder is checked before the fit
 
 
 def cmd_hazardfit(args) -> int:
@@ -42,8 +37,7 @@ def cmd_screen(args) -> int:
 def cmd_report(args) -> int:
     from pondsim.report.build import cmd_report as run_report
 
-    _check_out_first(_out_dir(args, "-report"))
-    return run_report(args)
+    return run_report(args)  # an output set: the folder is checked before the study
 
 
 def cmd_keys(args) -> int:

@@ -95,13 +95,6 @@ def check_arguments(args) -> None:
         raise InputError("empty output folder name", field="--out")
 
 
-def _check_out_first(folder) -> None:
-    """Check an output folder before a command that writes its own files computes."""
-    from pondsim.results.files import check_output_folder, clean_output_folder
-
-    clean_output_folder(check_output_folder(folder))
-
-
 def _out_dir(args, suffix: str) -> Path:
     return Path(args.out) if args.out else Path("out") / f"{Path(args.scenario).stem}{suffix}"
 
@@ -115,8 +108,7 @@ def _output_set(args, command: str, suffix: str, seed):
 
 
 def _print_written(files, written) -> None:
-    print("\nwritten: " + ", ".join(str(files.final(p)) for p in written)
-          + f" (run {files.run_id}; README.txt, pondsim-manifest.json)")
+    print("\n" + files.written_line(written))
 
 
 def _check_memory(scenario, members, n_sets=1):

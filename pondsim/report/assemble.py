@@ -3,6 +3,7 @@ drivers, crashes by month, the single-K view) and the table of every assumption.
 
 from __future__ import annotations
 
+import re
 import tomllib
 
 import numpy as np
@@ -62,6 +63,50 @@ def crash_months(ds) -> pd.DataFrame:
     return pd.DataFrame(rows).set_index(["policy", "month"])
 
 
+def dewatering_check(ds, scenario) -> pd.DataFrame:
+    """The farm's dewatering load per policy and season against the plant's capacity.
+
+    The same check ``pondsim tune`` applies to its candidates
+    (:mod:`pondsim.operations.plan_runs`): the farm's daily volume sent to dewatering is
+    the member mean of the harvested share of the culture × pond volume × pond count
+    [m3 d-1]; ponds harvested on a schedule of a few days are staggered, so the plant sees
+    its trailing running mean over ``DEWATERING_WINDOW_D`` days, and the season's peak of
+    that mean is compared with ``harvest.dewatering_capacity_m3_per_d`` (farm, all
+    ponds).
+
+    Returns
+    -------
+    pandas.DataFrame
+        Rows ``(policy, season)`` and ``(policy, "year")``; columns
+        ``dewatering_farm_m3`` [m3 per season or year, member mean],
+        ``peak_7d_mean_farm_m3_d`` [m3 d-1], ``capacity_farm_m3_d`` [m3 d-1, empty =
+        no limit set], ``within_capacity`` ("yes" / "no" / "no limit set").
+    """
+    from pondsim.operations.plan_runs import DEWATERING_WINDOW_D, _running_mean
+
+    pond = scenario.pond
+    cap = scenario.harvest.dewatering_capacity_m3_per_d
+    share = _with_member(ds["harvest_fraction"].astype(float)).mean("member")  # (p, day)
+    farm = share.transpose("policy", "day").values * pond.volume_m3 * pond.count
+    running = _running_mean(farm, DEWATERING_WINDOW_D)
+    months = pd.DatetimeIndex(ds["date"].values).month.to_numpy()
+    periods = [(s.name, np.isin(months, s.months)) for s in scenario.seasons]
+    periods.append(("year", np.ones(months.size, dtype=bool)))
+    rows = []
+    for i, pol in enumerate(ds["policy"].values):
+        for name, days in periods:
+            if not days.any():
+                continue
+            peak = float(running[i, days].max())
+            rows.append({"policy": str(pol), "season": name,
+                         "dewatering_farm_m3": float(farm[i, days].sum()),
+                         "peak_7d_mean_farm_m3_d": peak,
+                         "capacity_farm_m3_d": np.nan if cap is None else float(cap),
+                         "within_capacity": "no limit set" if cap is None else
+                         ("yes" if peak <= cap * (1 + 1e-9) else "no")})
+    return pd.DataFrame(rows).set_index(["policy", "season"])
+
+
 def _single_k_view(ds):
     """The ensemble with the day-by-day median K over members, for the figures and the
     calendar of :mod:`pondsim.studies.compare`, which take one K series."""
@@ -76,33 +121,6 @@ def _single_k_view(ds):
 # ---------------------------------------------------------------------------------------
 # The assumption table
 # ---------------------------------------------------------------------------------------
-
-#: Coefficients of the inputs bill (pondsim.studies.inputs_bill.InputsParams): unit and source.
-BILL_PARAMETERS = {
-    "carbon_fraction": ("kg C kg-1", "Carbon share of dry biomass, about 50 % (Chisti 2007, "
-                        "Biotechnol. Adv. 25:294-306; from memory)."),
-    "co2_utilisation": ("1", "Share of the supplied CO2 that the culture takes up (common "
-                        "practice)."),
-    "n_fraction": ("kg N kg-1", "Nitrogen share of dry biomass (from memory)."),
-    "p_fraction": ("kg P kg-1", "Phosphorus share of dry biomass (from memory)."),
-    "n_fertiliser": ("", "Nitrogen product."),
-    "p_fertiliser": ("", "Phosphorus product."),
-    "recycle_fraction": ("1", "Share of harvested medium returned to the ponds after "
-                         "dewatering (common practice; 0.9 from memory of design studies)."),
-    "harvest_density_g_m3": ("g m-3", "Density at harvest, used only when no harvested "
-                             "volume is known (common practice 300-1000 g m-3)."),
-    "manning_n": ("s m-1/3", "Manning roughness of the channel, float-finished concrete "
-                  "(Chow 1959, Open-Channel Hydraulics, Table 5-6; from memory)."),
-    "bend_k": ("1", "Loss of one 180 degree bend in velocity heads (raceway design texts; "
-               "from memory)."),
-    "paddlewheel_efficiency": ("1", "Wire-to-water efficiency of the paddlewheel drive "
-                               "(from memory, not verified)."),
-    "mixing_hours_per_day": ("h d-1", "Paddlewheels run around the clock (common "
-                             "practice)."),
-    "length_to_width": ("1", "Pond proportion when the channel width is not given (common "
-                        "practice)."),
-    "n_channels": ("", "Channels of one raceway (one bend per channel end)."),
-}
 
 #: Model constants that every run uses.
 MODEL_CONSTANTS = (
@@ -132,17 +150,43 @@ def _format_value(v) -> str:
     return str(v)
 
 
-def assumption_table(scenario, *, options: dict, mixing: dict, bill_params: dict,
+#: Words that show a default's note names its source or marks it as an assumption.
+_SOURCED = re.compile(r"\b(1[89]|20)\d\d\b|assumption|common practice|definition|"
+                      r"IUPAC|ASTM|FAO", re.IGNORECASE)
+
+
+def default_note(doc: str, value) -> str:
+    """The note the report shows for a default: the schema's doc text, with an unchecked
+    value labelled ASSUMPTION.
+
+    A doc that quotes a value without its source checked ("from memory" in the code) is
+    shown as "ASSUMPTION, source not checked"; a numeric default whose doc cites no source
+    and is not marked gets "ASSUMPTION (pondsim's default; no source cited)". A key left
+    unset assumes nothing, and a switch or a name (true/false, a model's name, a text) is
+    a choice rather than a value: both are shown as they are.
+    """
+    note = re.sub(r"\bfrom memory\b", "ASSUMPTION, source not checked", str(doc),
+                  flags=re.IGNORECASE)
+    note = re.sub(r"\bnot verified\b", "not checked", note, flags=re.IGNORECASE)
+    numeric = isinstance(value, int | float) and not isinstance(value, bool)
+    if not numeric or _SOURCED.search(note):
+        return note
+    return f"{note.rstrip()} ASSUMPTION (pondsim's default; no source cited)."
+
+
+def assumption_table(scenario, *, options: dict, mixing: dict,
                      photons_per_joule: float) -> pd.DataFrame:
     """Every parameter of the study with its unit, value and source.
 
     ``source`` is ``scenario`` for a value set in the scenario file, ``default`` for a
     schema default (``note`` then holds the schema's doc text with its source or
-    ASSUMPTION mark), and ``derived``, ``run option`` or ``model constant`` otherwise.
+    ASSUMPTION mark, see :func:`default_note`), and ``derived``, ``run option`` or
+    ``model constant`` otherwise. The ``[inputs]`` and ``[prices]`` sections of the
+    bill are included; prices left unset read "not set" (that line is not priced).
     """
     from pondsim.pond import light
     from pondsim.results import tables as results
-    from pondsim.scenario import POLICY_KEYS, SCHEMA, UNCERTAINTY_KEYS
+    from pondsim.scenario import INPUTS_KEYS, POLICY_KEYS, PRICES_KEYS, SCHEMA, UNCERTAINTY_KEYS
 
     with open(scenario.path, "rb") as fh:
         raw = tomllib.load(fh)
@@ -153,6 +197,8 @@ def assumption_table(scenario, *, options: dict, mixing: dict, bill_params: dict
     rows = []
 
     def add(group, key, unit, value, source, note):
+        if source == "default":
+            note = default_note(note, value)
         rows.append({"group": group, "key": key, "unit": unit, "value": _format_value(value),
                      "source": source, "note": note})
 
@@ -220,19 +266,25 @@ def assumption_table(scenario, *, options: dict, mixing: dict, bill_params: dict
              "indices (0: not computed).")):
         add("option", name, "", value, "run option", note)
 
-    for name, value in bill_params.items():
-        unit, note = BILL_PARAMETERS.get(name, ("", ""))
-        add("inputs", name, unit, value, "default", note)
-    add("inputs", "prices", "", "not priced", "default",
-        "Scenario files hold no prices yet; the bill gives quantities only.")
+    for section, keys, obj in (("inputs", INPUTS_KEYS, scenario.inputs),
+                               ("prices", PRICES_KEYS, scenario.prices)):
+        given = raw.get(section, {})
+        for name, key in keys.items():
+            add(section, name, key.unit, getattr(obj, name),
+                "scenario" if name in given else "default", key.doc)
+    if not scenario.prices.any:
+        add("prices", "(all)", "", "not priced", "default",
+            "The scenario has no [prices]: the bill gives quantities only.")
     for name, unit, note in (("channel_width_m", "m", "Raceway channel width from the "
                               "pond area and proportion."),
                              ("channel_length_m", "m", "Flow path of one circuit."),
-                             ("velocity_m_s", "m s-1", "Design mean channel velocity "
-                              "(common practice 0.2-0.3 m s-1)."),
+                             ("velocity_m_s", "m s-1", "Mean channel velocity "
+                              "(inputs.velocity_m_s)."),
                              ("head_m", "m", "Head loss of one circuit: Manning friction "
                               "plus bends."),
-                             ("power_w", "W", "Paddlewheel power of one pond.")):
+                             ("power_w", "W", "Electric paddlewheel power of one pond "
+                              "(hydraulic power over paddlewheel and drive "
+                              "efficiencies).")):
         add("mixing", name, unit, float(mixing[name]), "derived", note)
 
     par_fraction = scenario.light.par_fraction

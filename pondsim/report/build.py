@@ -42,20 +42,19 @@ from pondsim.report.manifest import (
     resolve_options,
     reusable_manifest,
 )
+from pondsim.report.methods import _limitations, _methods
 from pondsim.report.run import run_study
 from pondsim.report.sections import (
     _assumptions,
-    _crash,
     _harvest,
     _headline,
-    _inputs,
-    _limitations,
-    _methods,
     _monthly,
     _question,
     _reproduce,
     _sensitivity,
 )
+from pondsim.report.sections_bill import inputs_section
+from pondsim.report.sections_crash import crash_section
 from pondsim.report.summary import summary_section
 from pondsim.results.files import atomic_write
 
@@ -81,10 +80,10 @@ def build_page(out_dir, scenario, manifest: dict, *, run_date: str | None = None
         summary_section(out, scenario, manifest),
         _question(scenario, manifest, drivers),
         _headline(out, scenario, manifest, annual, summary, best),
-        _monthly(out, manifest, drivers, bands),
-        _harvest(out, scenario, comparison, best),
-        _crash(out, scenario, by_month, calendar),
-        _inputs(manifest, bill),
+        _monthly(out, manifest, drivers, bands, scenario),
+        _harvest(out, scenario, comparison, best, summary, manifest),
+        crash_section(out, scenario, manifest, by_month, calendar),
+        inputs_section(out, manifest, bill),
         _sensitivity(out, scenario, manifest, sens),
         _assumptions(assumptions),
         _methods(),
@@ -111,20 +110,49 @@ def build_page(out_dir, scenario, manifest: dict, *, run_date: str | None = None
 
 def make_report(scenario_path, out_dir, *, years=None, draws=None, members=None, seed=None,
                 run_date: str | None = None) -> ReportRun:
-    """Run (or reuse) the study for *scenario_path* in *out_dir* and write report.html."""
+    """Run (or reuse) the study for *scenario_path* in *out_dir* and write report.html.
+
+    The whole folder is one output set (:class:`pondsim.results.files.OutputSet`): the
+    folder is checked before any computation, every file is written into a hidden staging
+    folder and the set moves into *out_dir* whole, so a run that fails or is killed
+    leaves the previous complete set (or nothing). When the results are reused, the
+    previous set's files are carried into the new set unchanged (hard links, else copies
+    with their times) and only the page is written again.
+    """
+    from pondsim.results.files import OutputSet
     from pondsim.scenario import load_scenario
 
     scenario = load_scenario(scenario_path)
     options = resolve_options(scenario, years=years, draws=draws, members=members, seed=seed)
     fingerprint = inputs_fingerprint(scenario, options)
-    manifest = reusable_manifest(out_dir, fingerprint)
-    reused = manifest is not None
-    if not reused:
-        manifest = run_study(scenario, out_dir, fingerprint)
-    page = build_page(out_dir, scenario, manifest, run_date=run_date)
-    path = Path(out_dir) / REPORT
-    atomic_write(path, lambda tmp: Path(tmp).write_text(page, encoding="utf-8"))
-    return ReportRun(path=path, reused=reused, manifest=manifest)
+    out = Path(out_dir)
+    with OutputSet(out, command="report", seed=options["seed"],
+                   scenario=scenario_path) as files:
+        manifest = reusable_manifest(out, fingerprint)
+        reused = manifest is not None
+        if reused:
+            _carry_over(out, files.dir, [*manifest["files"], MANIFEST])
+        else:
+            manifest = run_study(scenario, files.dir, fingerprint)
+        files.notes["site_check"] = manifest.get("site_check") or "not run"
+        page = build_page(files.dir, scenario, manifest, run_date=run_date)
+        atomic_write(files.dir / REPORT,
+                     lambda tmp: Path(tmp).write_text(page, encoding="utf-8"))
+    return ReportRun(path=out / REPORT, reused=reused, manifest=manifest)
+
+
+def _carry_over(folder: Path, staging: Path, names) -> None:
+    """Put the previous set's files *names* into the staging folder unchanged."""
+    import os
+    import shutil
+
+    for name in names:
+        src, dst = folder / name, staging / name
+        dst.parent.mkdir(parents=True, exist_ok=True)
+        try:
+            os.link(src, dst)
+        except OSError:  # no hard links on this file system
+            shutil.copy2(src, dst)
 
 
 # ---------------------------------------------------------------------------------------
@@ -173,6 +201,23 @@ def cmd_report(args) -> int:
     print(f"lead: {m['lead_policy']}: P50 {r['P50_farm_t_yr']:,.1f} t, P90 "
           f"{r['P90_farm_t_yr']:,.1f} t AFDW per year for the farm, "
           f"{r['mean_g_m2_d']:.2f} g/m2/d, {r['expected_crashes_yr']:.2f} crashes per year")
+    check = m.get("site_check")
+    if check:
+        print(("WARNING: " if str(check).startswith("FAILED") else "") + f"site check {check}")
+    if (out / "summary.csv").is_file():
+        summary = read_table(out / "summary.csv", index_col="policy")
+        for pol in summary.index:
+            if float(summary.loc[pol, "washed_out_pct"]) > 0:
+                print(f"WARNING: {pol} washes out (held at the viable floor too long) in "
+                      f"{summary.loc[pol, 'washed_out_pct']:.0f} % of members")
+    per_t = out / "inputs_cost_per_t.csv"
+    cur = (m.get("bill") or {}).get("currency")
+    if cur and per_t.is_file():
+        row = read_table(per_t, index_col="figure").iloc[0]
+        print(f"inputs per tonne of product: P50 {row[f'P50_{cur}_per_t']:,.0f} {cur}, "
+              f"conservative P10 {row[f'P10_{cur}_per_t']:,.0f} {cur}")
+    else:
+        print("inputs bill: not priced (the scenario has no [prices])")
     print(f"report written: {run.path}")
     print("\n" + CAUTION)
     return 0

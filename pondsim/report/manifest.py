@@ -12,7 +12,7 @@ from pondsim.errors import InputError
 
 MANIFEST = "report_inputs.json"
 REPORT = "report.html"
-MANIFEST_FORMAT = 1
+MANIFEST_FORMAT = 2  # 2: priced bill, crash causes, pond water, dewatering
 
 #: Tables written by a report run (file name -> what it holds).
 TABLES = {
@@ -23,13 +23,20 @@ TABLES = {
     "comparison.csv": "per season and policy: yield, harvests, crash risk",
     "best_by_season.csv": "best policy per season under the risk limit",
     "crash_months.csv": "expected crashes and crash probability per month and policy",
-    "risk_calendar.csv": "days of the steepest fall of K and the overshoot then",
-    "inputs_bill.csv": "monthly and annual inputs of the farm for the lead policy",
+    "risk_calendar.csv": "days of the steepest fall of K and where each rule stands then",
+    "crashes_by_cause.csv": "expected crashes per pond by policy, month and named cause",
+    "crashes_per_year.csv": "crashes per pond-year by cause and salvage, per policy",
+    "pond_water_monthly.csv": "monthly water temperature, evaporation, rain, stress hours",
+    "dewatering_check.csv": "farm dewatering load per season against the plant capacity",
+    "inputs_bill.csv": "monthly and annual inputs (and costs) of the farm, lead policy",
+    "inputs_bill_lines.csv": "each line of the bill with its basis, source and price",
     "assumptions.csv": "every parameter with its unit, value and source",
 }
 FIGURES = ("exceedance.png", "monthly_bands.png", "monthly_drivers.png",
            "trajectories.png", "seasonal_yield.png", "risk_calendar.png")
 OPTIONAL = ("sensitivity.csv", "sensitivity.png")
+#: Written when the scenario has [prices].
+PRICED = ("inputs_cost_per_t.csv",)
 
 
 @dataclass(frozen=True)

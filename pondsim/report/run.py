@@ -1,6 +1,8 @@
 """Running the studies of a report: the outlook ensemble, the season comparison, the
-crash-risk calendar, the inputs bill and the Sobol sensitivity; every table, the netCDF
-results, the figures and, last, the manifest are written into the output folder."""
+crash-risk calendar, crashes by cause, the pond water and its stress hours, the
+dewatering check, the priced inputs bill and the Sobol sensitivity; every table, the
+netCDF results, the figures and, last, the manifest are written into the folder given
+(the staging folder of the report's output set)."""
 
 from __future__ import annotations
 
@@ -9,10 +11,20 @@ import json
 import math
 from pathlib import Path
 
-import numpy as np
-
-from pondsim.report.assemble import _single_k_view, assumption_table, crash_months, monthly_drivers
-from pondsim.report.manifest import MANIFEST, MANIFEST_FORMAT, _expected_files, _file_sha256
+from pondsim.report.assemble import (
+    _single_k_view,
+    assumption_table,
+    crash_months,
+    dewatering_check,
+    monthly_drivers,
+)
+from pondsim.report.manifest import (
+    MANIFEST,
+    MANIFEST_FORMAT,
+    PRICED,
+    _expected_files,
+    _file_sha256,
+)
 from pondsim.results.files import atomic_write
 
 # ---------------------------------------------------------------------------------------
@@ -24,17 +36,22 @@ def run_study(scenario, out_dir, fingerprint: dict) -> dict:
     *out_dir*, and return the manifest (written last)."""
     from pondsim.operations.crash import CrashModel
     from pondsim.operations.simulate import crash_model_of
+    from pondsim.results.crashes import (
+        crash_basis_line,
+        crashes_by_cause,
+        crashes_per_year_by_cause,
+        weather_basis,
+    )
     from pondsim.results.figstyle import context_of, source_of
     from pondsim.results.figures import compare_figures, drivers_figure, outlook_figures
     from pondsim.results.files import save, write_csv
-    from pondsim.results.tables import policy_summary
+    from pondsim.results.tables import monthly_pond_water, policy_summary
+    from pondsim.studies.bill import scenario_bill
     from pondsim.studies.compare import best_by_season, risk_calendar, season_table
-    from pondsim.studies.inputs_bill import bill_from_results
     from pondsim.studies.outlook import annual_table, monthly_bands, run_outlook, sensitivity
 
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
-    (out / MANIFEST).unlink(missing_ok=True)  # a run that stops leaves nothing to reuse
     opt = fingerprint["options"]
     ds, meta = run_outlook(scenario, n_years=opt["weather_years"],
                            n_draws=opt["parameter_draws"], members=opt["crash_replicates"],
@@ -52,22 +69,22 @@ def run_study(scenario, out_dir, fingerprint: dict) -> dict:
     sens = None
     if opt["sensitivity"]:
         sens = sensitivity(scenario, lead, n=opt["sobol_samples"], seed=opt["seed"])
-    quiet = ds.copy()
-    for name in ("evaporation", "rain"):
-        if "member" in ds[name].dims:
-            quiet[name] = ds[name].mean("member")
-    rain = quiet["rain"].values
-    bill = bill_from_results(quiet, policy=lead,
-                             rain_mm_daily=None if np.isnan(rain).all() else rain)
-    assumptions = assumption_table(scenario, options=opt, mixing=bill.attrs["mixing"],
-                                   bill_params=bill.attrs["params"],
+    bill = scenario_bill(ds, scenario, lead)  # the ensemble as is: member by member
+    assumptions = assumption_table(scenario, options=opt, mixing=bill.mixing,
                                    photons_per_joule=ds.attrs["photons_per_joule_umol"])
 
     save(ds, out / "results.nc")
     tables = {"annual_yield.csv": annual, "summary.csv": summary,
               "monthly_bands.csv": bands, "monthly_drivers.csv": drivers,
               "comparison.csv": seasons, "best_by_season.csv": best,
-              "crash_months.csv": crash_months(ds), "inputs_bill.csv": bill}
+              "crash_months.csv": crash_months(ds),
+              "crashes_by_cause.csv": crashes_by_cause(ds),
+              "crashes_per_year.csv": crashes_per_year_by_cause(ds),
+              "pond_water_monthly.csv": monthly_pond_water(ds),
+              "dewatering_check.csv": dewatering_check(ds, scenario),
+              "inputs_bill.csv": bill.monthly, "inputs_bill_lines.csv": bill.lines}
+    if bill.cost_per_t is not None:
+        tables["inputs_cost_per_t.csv"] = bill.cost_per_t
     for name, table in tables.items():
         write_csv(table, out / name)
     write_csv(calendar, out / "risk_calendar.csv", index=False)
@@ -79,7 +96,7 @@ def run_study(scenario, out_dir, fingerprint: dict) -> dict:
     drivers_figure(drivers, scenario.strain, out / "monthly_drivers.png",
                    context=context_of(ds), source=source_of(ds))
 
-    names = _expected_files(opt)
+    names = _expected_files(opt) + [n for n in PRICED if (out / n).is_file()]
     manifest = {
         "format": MANIFEST_FORMAT, **fingerprint,
         "computed": dt.datetime.now().astimezone().isoformat(timespec="seconds"),
@@ -94,6 +111,11 @@ def run_study(scenario, out_dir, fingerprint: dict) -> dict:
                      "converged": (None if ds.attrs.get("converged") is None
                                    else bool(int(ds.attrs["converged"])))},
         "weather_notes": [str(n) for n in meta.get("notes", [])],
+        "site_check": str(ds.attrs.get("site_check", "")) or None,
+        "weather_basis": weather_basis(ds),
+        "crash_basis": crash_basis_line(ds),
+        "bill": {"policy": lead, "currency": bill.currency,
+                 "notes": [str(n) for n in bill.notes]},
         "files": {name: _file_sha256(out / name) for name in names},
     }
     text = json.dumps(manifest, indent=2, sort_keys=True) + "\n"

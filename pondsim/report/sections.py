@@ -8,7 +8,6 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from pondsim.glossary import CAUTION
 from pondsim.report.assemble import _format_value
 from pondsim.report.html import (
     _describe,
@@ -50,6 +49,8 @@ def _question(scenario, manifest: dict, drivers: pd.DataFrame) -> str:
         ("study year", f"{scenario.year} ({ens['days']} days)"),
         ("site", where),
         ("weather", weather),
+        ("weather basis", manifest.get("weather_basis") or "not stated"),
+        ("site check", _site_check_text(manifest)),
         ("ensemble", f"{ens['weather_years']} weather year(s) × {ens['parameter_draws']} "
                      f"parameter draw(s) × {ens['replicates']} crash replicate(s) = "
                      f"{ens['members']} members per policy"),
@@ -81,9 +82,24 @@ def _question(scenario, manifest: dict, drivers: pd.DataFrame) -> str:
                    f"{par.max():.1f} mol m⁻² d⁻¹ of PAR into the culture, and the pond's "
                    f"monthly mean water temperature runs from {tw.min():.1f} to "
                    f"{tw.max():.1f} °C (section {section_number('monthly')})."))
+    check = manifest.get("site_check")
+    if check and str(check).startswith("FAILED"):
+        body.append(_p(f"WARNING: the site check failed ({check}). The scenario's site and "
+                       "the weather file disagree (coordinates, time zone or the hour of "
+                       "the irradiance peak); a wrong offset or longitude sign shifts the "
+                       "sun against the clock and can ruin every number in this report.",
+                       "note"))
     for note in manifest.get("weather_notes", []):
         body.append(_p(f"Weather note: {note}", "note"))
     return "\n".join(body)
+
+
+def _site_check_text(manifest: dict) -> str:
+    """The site check's result (scenario site vs weather header and solar noon)."""
+    check = manifest.get("site_check")
+    if not check:
+        return "not run"
+    return ("WARNING: " if str(check).startswith("FAILED") else "") + str(check)
 
 
 def _headline(out: Path, scenario, manifest: dict, annual, summary, best) -> str:
@@ -119,6 +135,8 @@ def _headline(out: Path, scenario, manifest: dict, annual, summary, best) -> str
     body.append(_table(headers, rows, caption="Annual yield over the ensemble (P90 = yield "
                        "exceeded in 90 % of members)", table_id="headline-table",
                        row_attrs=attrs))
+    if manifest.get("crash_basis"):
+        body.append(_p(f"Basis of these numbers: {manifest['crash_basis']}.", "note"))
     implausible = [p for p in summary.index if not bool(summary.loc[p, "plausible"])]
     for p in implausible:
         body.append(_p(f"Warning: {p} converts more than 4.6 % of total solar radiation "
@@ -149,7 +167,47 @@ def _truthy(v) -> bool:
     return v is True or str(v).strip().lower() in ("true", "1", "yes")
 
 
-def _monthly(out: Path, manifest: dict, drivers, bands) -> str:
+def _pond_water(out: Path, scenario) -> list[str]:
+    """Monthly pond water and the hours beyond the strain's cardinal temperatures."""
+    path = out / "pond_water_monthly.csv"
+    if not path.is_file():
+        return []
+    from pondsim.report.html import read_table
+
+    water = read_table(path, index_col="month")
+    st = scenario.strain
+    cols = [("water_temperature_mean_c", 1, "water temperature, mean [°C]"),
+            ("evaporation_mm", 0, "evaporation [mm]"), ("rain_mm", 0, "rain [mm]"),
+            ("hours_above_t_opt", 0, f"hours above the optimum {st.t_opt_c:g} °C [h]"),
+            ("hours_above_t_max", 0, f"hours above the maximum {st.t_max_c:g} °C [h]"),
+            ("hours_below_t_min", 0, f"hours below the minimum {st.t_min_c:g} °C [h]")]
+    cols = [c for c in cols if c[0] in water.columns]
+    rows = []
+    for m, r in water.iterrows():
+        label = "year" if str(m) == "year" else _month_name(m)
+        cells = [f'<th scope="row">{label}</th>']
+        for col, digits, _ in cols:
+            v = r[col]
+            cells.append('<td class="nowrap">no data</td>' if col == "rain_mm" and
+                         not np.isfinite(float(v)) else _td(v, digits, col=col))
+        rows.append(cells)
+    year = water.loc["year"] if "year" in water.index else None
+    text = ("The pond water month by month (means over the ensemble's members; rain as "
+            "the weather file gives it, \"no data\" where it has none) and the hours the "
+            "water spends beyond the strain's cardinal temperatures: above the optimum "
+            "growth slows, above the maximum it stops and the heat cause of the crash "
+            "hazard acts, below the minimum it stops.")
+    if year is not None and "hours_above_t_max" in water.columns:
+        text += (f" Over the year: {_num(year['hours_above_t_max'], 0)} h above the "
+                 f"maximum, {_num(year.get('hours_below_t_min', np.nan), 0)} h below the "
+                 "minimum.")
+    return [_p(text), _table(["month"] + [c[2] for c in cols], rows,
+                             caption="Pond water and stress hours by month",
+                             table_id="pond-water-table",
+                             row_attrs=[f' data-month="{esc(m)}"' for m in water.index])]
+
+
+def _monthly(out: Path, manifest: dict, drivers, bands, scenario=None) -> str:
     lead = manifest["lead_policy"]
     lead_bands = bands.xs(lead, level="policy") if lead in bands.index.get_level_values(0) \
         else None
@@ -189,15 +247,98 @@ def _monthly(out: Path, manifest: dict, drivers, bands) -> str:
                     "Yield by month: harvested productivity, median with the 10th–90th "
                     "percentile band "
                     "over ensemble members.")]
+    if scenario is not None:
+        body += _pond_water(out, scenario)
     return "\n".join(body)
 
 
-def _harvest(out: Path, scenario, comparison, best) -> str:
+def _washout(scenario, summary) -> list[str]:
+    """Which rules wash the culture out (held at the viable floor too long)."""
+    from pondsim.operations.harvest import floor_of
+
+    if "washed_out_pct" not in summary.columns:
+        return []
+    h = scenario.harvest
+    rows = []
+    for pol, r in summary.iterrows():
+        rows.append([f'<th scope="row">{esc(pol)}</th>',
+                     _td(r["washed_out_pct"], 0, col="washed_out_pct"),
+                     _td(r["days_at_floor"], 1, col="days_at_floor"),
+                     _text_td("WASHED OUT in some members" if float(r["washed_out_pct"]) > 0
+                              else "no")])
+    washed = [p for p in summary.index if float(summary.loc[p, "washed_out_pct"]) > 0]
+    text = (f"No harvest leaves less than the viable floor of {floor_of(scenario):g} g m⁻³ "
+            f"in a pond; a member held at the floor for more than {h.washout_days} days "
+            "in a row is washed out: the rule dilutes faster than the culture grows, or "
+            "the culture cannot grow there at that time of year.")
+    text += (" Washed out in some members: " + ", ".join(washed) + "; the best plan per "
+             "season avoids a rule in a season where it washes out." if washed else
+             " No rule washes out.")
+    return [_p(text), _table(["policy or plan", "members washed out [%]",
+                              "days at the floor [d yr⁻¹]", "washout"], rows,
+                             caption="Washout over the year (member means)",
+                             table_id="washout-table",
+                             row_attrs=[f' data-policy="{esc(p)}"' for p in summary.index])]
+
+
+def _dewatering(out: Path, scenario, manifest: dict) -> list[str]:
+    """The farm's dewatering load per season against the plant's capacity."""
+    path = out / "dewatering_check.csv"
+    if not path.is_file():
+        return []
+    from pondsim.operations.plan_runs import DEWATERING_WINDOW_D
+    from pondsim.report.html import read_table
+
+    check = read_table(path, index_col=["policy", "season"])
+    cap = scenario.harvest.dewatering_capacity_m3_per_d
+    periods = list(pd.unique(check.index.get_level_values("season")))
+    seasons = [p for p in periods if p != "year"]
+    rows, attrs = [], []
+    for pol in pd.unique(check.index.get_level_values("policy")):
+        part = check.xs(pol, level="policy")
+        cells = [f'<th scope="row">{esc(pol)}</th>']
+        for season in seasons:
+            r = part.loc[season]
+            cell = _td(r["peak_7d_mean_farm_m3_d"], 0, col="peak_7d_mean_farm_m3_d")
+            if str(r["within_capacity"]) == "no":
+                cell = cell.replace('class="num"', 'class="num over"').replace(
+                    "</td>", " (over)</td>")
+            cells.append(cell)
+        year = part.loc["year"]
+        ok = str(year["within_capacity"])
+        cells += [_td(year["dewatering_farm_m3"], 0, col="dewatering_farm_m3"),
+                  _text_td("OVER CAPACITY" if ok == "no" else ok)]
+        rows.append(cells)
+        attrs.append(f' data-policy="{esc(pol)}"')
+    over = sorted({p for (p, s), r in check.iterrows()
+                   if str(r["within_capacity"]) == "no"})
+    text = (f"The dewatering check that pondsim tune applies: the farm's daily culture "
+            f"volume sent to dewatering, as a {DEWATERING_WINDOW_D}-day running mean "
+            "(ponds on a schedule of a few days are staggered), peak per season")
+    if cap is None:
+        text += (", against no capacity: harvest.dewatering_capacity_m3_per_d is not set, "
+                 "so the plant is assumed to take any load.")
+    else:
+        text += (f", against the plant's {cap:,.0f} m³ d⁻¹ "
+                 "(harvest.dewatering_capacity_m3_per_d). "
+                 + ("Over capacity in some season: " + ", ".join(over) + "."
+                    if over else "Every rule stays within it."))
+    headers = (["policy or plan"]
+               + [f"{s}: peak {DEWATERING_WINDOW_D}-day mean [m³ d⁻¹]" for s in seasons]
+               + ["dewatering per year [m³ farm⁻¹]", "within capacity all year"])
+    return [_p(text), _table(headers, rows, caption="Dewatering load of the farm by season "
+                             "(member means)", table_id="dewatering-table",
+                             row_attrs=attrs)]
+
+
+def _harvest(out: Path, scenario, comparison, best, summary=None, manifest=None) -> str:
     limit = scenario.crash.max_season_probability
     body = [_p("Each harvest rule and season plan was run on every member of the ensemble. "
                f"For each season the best rule is the one with the most biomass whose "
                f"probability of at least one crash in the season stays within the risk "
-               f"limit of {limit:.0%} (crash.max_season_probability). The seasonal winners "
+               f"limit of {limit:.0%} (crash.max_season_probability) and whose culture "
+               "never washes out there; where no rule meets both, the least risky is "
+               "named and flagged. The seasonal winners "
                "together make a plan; to get its annual numbers, write it as a [[plan]] "
                "in the scenario (or run pondsim tune) and run the report again.")]
     names = list(pd.unique(comparison.index.get_level_values("policy")))
@@ -225,12 +366,13 @@ def _harvest(out: Path, scenario, comparison, best) -> str:
                      _td(r["yield_pct90_t_ha"], 2), _td(r["productivity_g_m2_d"], 2),
                      _td(r["harvests"], 1), _td(r["harvest_volume_m3"], 0),
                      _td(r["expected_crashes"], 2), _td(r["p_crash"], 0, pct=True),
-                     _td(r["days_at_risk"], 1)])
+                     _td(r["days_at_risk"], 1),
+                     _td(r.get("p_washout", np.nan), 0, pct=True, col="p_washout")])
     body.append(_table(["season", "policy or plan", "yield mean [t ha⁻¹]",
                         "yield 10th pct [t ha⁻¹]", "yield 90th pct [t ha⁻¹]",
                         "productivity [g m⁻² d⁻¹]", "harvests [count]",
                         "harvested volume per pond [m³]", "expected crashes [count]",
-                        "P(≥ 1 crash) [%]", "days at risk [d]"], rows,
+                        "P(≥ 1 crash) [%]", "days at risk [d]", "P(washout) [%]"], rows,
                        caption="Every rule in every season (member means; 10th/90th "
                                "percentiles over "
                                "members)", table_id="comparison-table"))
@@ -245,92 +387,12 @@ def _harvest(out: Path, scenario, comparison, best) -> str:
                         "through the year with the carrying capacity K, the 10th to 90th "
                         "percentile "
                         "band over members, harvest days and crashes of one member.",
-                        "Density through the year by rule, with the ensemble's median K."))
-    return "\n".join(body)
-
-
-def _crash(out: Path, scenario, crash_by_month, calendar) -> str:
-    c = scenario.crash
-    body = [_p("A culture is at risk when it stands near or above its carrying capacity "
-               "while K falls (a cold or dull spell, the end of summer). The daily hazard "
-               f"adds up to {c.stress_hazard_per_d:g} d⁻¹ of weather stress to a base of "
-               f"{c.base_hazard_per_d:g} d⁻¹; a crash loses {c.loss_fraction:.0%} of the "
-               "standing biomass and takes the pond out for "
-               f"{scenario.inoculation.restart_days} d. These hazard values are "
-               "ASSUMPTIONS until replaced by the site's own crash history."
-               + ("" if c.enabled else " Crashes are switched off in this scenario: the "
-                  "calendar shows where K falls, but no crash was drawn."))]
-    pols = list(pd.unique(crash_by_month.index.get_level_values("policy")))
-    months = sorted(set(crash_by_month.index.get_level_values("month")))
-    for col, digits, unit, caption, tid in (
-            ("expected_crashes", 3, "per month", "Expected crashes per pond by month "
-             "(member means)", "crash-months"),
-            ("daily_crash_probability_pct", 2, "%", "Mean daily crash probability by month",
-             "crash-probability")):
-        rows = []
-        for m in months:
-            rows.append([f'<th scope="row">{_month_name(m)}</th>']
-                        + [_td(crash_by_month.loc[(p, m), col], digits) for p in pols])
-        body.append(_table(["month"] + [f"{p} [{unit}]" for p in pols], rows,
-                           caption=caption, table_id=tid))
-    body.append(_figure(out, "risk_calendar.png",
-                        "Two panels through the year: the percentage fall of the smoothed "
-                        "carrying capacity over the window, and a greyscale strip per "
-                        "policy of the daily crash probability in percent.",
-                        "Crash-risk calendar: where K falls and how likely a crash is "
-                        "(median K over the ensemble; single years see sharper falls)."))
-    if len(calendar):
-        ratio_cols = [col for col in calendar.columns if col.startswith("X/K ")]
-        rows = []
-        for _, r in calendar.iterrows():
-            rows.append([_text_td(r["date"], nowrap=True), _text_td(r["season"], nowrap=True),
-                         _td(r["K_smoothed_g_m3"], 0), _td(r["K_drop_pct"], 1)]
-                        + [_td(r[col], 2) for col in ratio_cols])
-        headers = ["date", "season", f"K, {c.window_days}-day mean [g m⁻³]",
-                   f"fall of K over {c.window_days} d [%]"] + [
-            f"X/K, {col[4:]} [–]" for col in ratio_cols]
-        body.append(_table(headers, rows, caption="Days of the steepest fall of K and where "
-                           "each rule stands then (median member)",
-                           table_id="calendar-table"))
-    else:
-        body.append(_p("K does not fall on any day of the year."))
-    return "\n".join(body)
-
-
-BILL_LABELS = {"biomass_t": "biomass harvested [t AFDW]", "co2_t": "CO₂ supplied [t]",
-               "n_t": "nitrogen N [t]", "p_t": "phosphorus P [t]",
-               "makeup_water_m3": "makeup water [m³]", "mixing_MWh": "mixing energy [MWh]"}
-
-
-def _inputs(manifest: dict, bill) -> str:
-    lead = manifest["lead_policy"]
-    body = [_p(f"What the farm consumes when it runs {lead} (the lead policy), member means "
-               "per month. CO₂, nitrogen and phosphorus follow the harvested biomass, so "
-               "biomass later lost to crashes or respiration is not counted: these lines "
-               "are lower bounds. Makeup water replaces evaporation net of rain plus the "
-               "harvested medium that is not recycled. Mixing is the paddlewheel energy of "
-               "every pond, every day.")]
-    cols = [c for c in bill.columns if not c.endswith("_cost")]
-    costs = [c for c in bill.columns if c.endswith("_cost")]
-    headers = ["month"] + [BILL_LABELS.get(c, f"{c[:-2]} fertiliser [t product]"
-                                           if c.endswith("_t") else c) for c in cols]
-    headers += [f"{c[:-5]} cost [currency]" for c in costs] or ["cost [currency]"]
-    rows = []
-    for month, r in bill.iterrows():
-        cells = [f'<th scope="row">{esc(month)}</th>']
-        for c in cols:
-            digits = {"makeup_water_m3": 0, "mixing_MWh": 1, "biomass_t": 2, "co2_t": 2}.get(
-                c, 3)
-            cells.append(_td(r[c], digits, col=c))
-        cells += [_td(r[c], 0, col=c) for c in costs] or ['<td class="nowrap">not priced</td>']
-        rows.append(cells)
-    body.append(_table(headers, rows, caption=f"Inputs bill of the farm for {lead} (last "
-                       "row: the year)", table_id="bill-table",
-                       row_attrs=[f' data-month="{esc(m)}"' for m in bill.index]))
-    if not costs:
-        body.append(_p("Not priced: scenario files hold no prices yet, so the bill gives "
-                       "quantities only. Multiply by local prices for CO₂, fertiliser, water "
-                       "and electricity.", "note"))
+                        "Density through the year by rule, with the ensemble's median K; "
+                        "harvests and crashes of one member on "
+                        f"{(manifest or {}).get('weather_basis') or 'the study weather'}."))
+    if summary is not None:
+        body += _washout(scenario, summary)
+    body += _dewatering(out, scenario, manifest or {})
     return "\n".join(body)
 
 
@@ -397,102 +459,6 @@ def _assumptions(assumptions) -> str:
                        table_id="assumptions-table",
                        widths=(30, 11, 17, 10, 32)))
     return "\n".join(body)
-
-
-METHODS = (
-    ("Sun position", "The NREL solar position algorithm (through pvlib), taken at the "
-     "middle of each hour.", "Reda & Andreas (2004) Solar Energy 76:577–589"),
-    ("Clear-sky irradiance", "The Ineichen–Perez model with Linke turbidity (pvlib), for "
-     "clear-sky site mode and the cloud correction.",
-     "Ineichen & Perez (2002) Solar Energy 73:151–157"),
-    ("Light entering the culture", "The PAR share of global irradiance and the photon "
-     "count per joule, both integrated over 400–700 nm of the ASTM G173 reference "
-     "spectrum; surface reflection from Fresnel's equations for water (n = 1.333) for the "
-     "beam and a constant 0.066 for sky light.",
-     "ASTM G173-03; checked against Szeicz (1974), Thimijan & Heins (1983) and Payne (1972) "
-     "J. Atmos. Sci. 29:959–970"),
-    ("Water temperature", "An hourly heat balance of one well-mixed layer: absorbed sun, sky "
-     "longwave in, longwave out, evaporation, convection, ground conduction and makeup "
-     "water.", "Béchet et al. (2011) Environ. Sci. Technol. 45:3702–3709"),
-    ("Sky longwave", "The weather file's infrared field where present, else Brutsaert's "
-     "clear-sky emissivity with a cloud correction.",
-     "Brutsaert (1975) Water Resour. Res. 11:742–744; Crawford & Duchon (1999)"),
-    ("Evaporation", "A Penman-type wind function for open water with FAO-56 saturation "
-     "vapour pressure.", "Shuttleworth (1993); Allen et al. (1998) FAO-56"),
-    ("Light response", "Steele, Monod/Tamiya or Jassby–Platt, averaged over the culture "
-     "depth under Beer–Lambert attenuation by biomass and medium.",
-     "Steele (1962); Jassby & Platt (1976)"),
-    ("Temperature response", "The cardinal temperature model with inflexion.",
-     "Rosso, Lobry & Flandrois (1993) J. Theor. Biol. 162:447–463"),
-    ("Maintenance", "A respiration loss m = m_ref·θ^(T − T_ref), by day and by night.",
-     "common practice (θ form)"),
-    ("Carrying capacity K", "Per day, the density at which that day's net growth is zero, "
-     "capped by a nutrient limit where one is set.", "pondsim's definition"),
-    ("Check of the engine", "With constant forcing the best sustained logistic yield is "
-     "r·K/4 at K/2.", "Schaefer (1954)"),
-    ("Crash hazard", "A base hazard plus a stress hazard that grows with overshoot above K "
-     "while K falls; seeded random draws per member.",
-     "pondsim's model; parameters are ASSUMPTIONS"),
-    ("Weather years", "Synthetic years resampled from the weather record (or the file's "
-     "own real years); they spread the weather but hold no year worse than the record.",
-     "pondsim.forcing.years"),
-    ("Parameter draws", "Latin hypercube sampling of the uncertain strain parameters.",
-     "McKay, Beckman & Conover (1979) Technometrics 21:239–245"),
-    ("Sensitivity", "First-order and total Sobol indices (Saltelli/Jansen estimators in "
-     "scipy.stats.sobol_indices) with bootstrap intervals.",
-     "Sobol' (2001); Saltelli et al. (2010) Comput. Phys. Commun. 181:259–270"),
-    ("Inputs bill", "CO₂ from the carbon in harvested biomass; N and P from its element "
-     "shares and the fertilisers' formulas (IUPAC atomic weights); mixing power from "
-     "Manning friction and bend losses of the raceway channel over the paddlewheel "
-     "efficiency.", "Chisti (2007); Redfield (1958); Chow (1959)"),
-    ("P-values", "Exceedance convention: P90 is the annual yield reached or exceeded in 90 % "
-     "of members (the 10th percentile), P50 the median.", "common practice in project "
-     "finance"),
-)
-
-
-def _methods() -> str:
-    rows = [[f'<th scope="row">{esc(stage)}</th>', _text_td(what), _text_td(source)]
-            for stage, what, source in METHODS]
-    return _table(["stage", "method", "published source"], rows,
-                  caption="Models used and where they come from", table_id="methods-table")
-
-
-def _limitations() -> str:
-    items = [
-        "The pond is one well-mixed layer: no vertical gradients of temperature or light "
-        "history (flashing light), no covered ponds or greenhouses.",
-        "Growth responds to light and temperature only; nutrients act only as a cap on K; "
-        "pH, dissolved oxygen, salinity and contamination dynamics are not modelled.",
-        "A typical-year weather file holds no real year-to-year variation. Synthetic years "
-        "spread the weather but hold no year worse than the record, so P90 may be "
-        "optimistic.",
-        "Crash hazards are assumptions, not measurements: replace them with the site's own "
-        "crash history before relying on the risk figures.",
-        "CO₂, N and P are lower bounds (biomass lost before harvest is not counted); "
-        "nothing is priced.",
-        "The best rule per season is picked season by season; the combined plan has not "
-        "been simulated as a whole until it is written into the scenario.",
-        "A demo or invented site, strain or weather file gives numbers for no real "
-        "decision.",
-    ]
-    safety = [
-        "These are estimates, not guarantees of yield, cost or safety.",
-        "Deep water: ponds and sumps are a drowning hazard; fence them and keep rescue "
-        "equipment at hand.",
-        "Paddlewheels and pumps: guard rotating parts and lock out power before work.",
-        "CO₂: pressurised gas that can collect in pits and low or enclosed spaces and "
-        "suffocate; follow the supplier's handling rules.",
-        "Chemicals (cleaning agents such as hypochlorite, acids, fertilisers): store and "
-        "handle them as their safety data sheets require.",
-        "Defer to local codes and permits and to licensed engineers for design, "
-        "construction and operation.",
-    ]
-    return ("<h3>What the model leaves out</h3><ul>"
-            + "".join(f"<li>{esc(t)}</li>" for t in items) + "</ul>"
-            + f'<div class="caution" id="caution"><p><strong>Caution.</strong> '
-            f"{esc(CAUTION)}</p><ul>" + "".join(f"<li>{esc(t)}</li>" for t in safety)
-            + "</ul></div>")
 
 
 def _reproduce(manifest: dict, run_date: str) -> str:

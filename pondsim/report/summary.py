@@ -90,17 +90,73 @@ def _plan(best: pd.DataFrame | None) -> str:
                   row_attrs=attrs)
 
 
-def _crash_risk(annual: pd.DataFrame, manifest: dict, scenario) -> str:
-    r = annual.loc[manifest["lead_policy"]]
-    text = (f"{_num(r['expected_crashes_yr'], 2)} expected crashes per pond per year "
-            f"under {manifest['lead_policy']}")
+def _crash_risk(annual: pd.DataFrame, manifest: dict, scenario, out: Path) -> str:
+    from pondsim.operations.crash import CAUSES
+
+    lead = manifest["lead_policy"]
+    r = annual.loc[lead]
     if not scenario.crash.enabled:
-        text = "crashes are switched off in this scenario"
-    return (f"{text}; crash hazards are ASSUMPTIONS until fitted to the site's own "
-            "crash history")
+        return "crashes are switched off in this scenario"
+    text = (f"{_num(r['expected_crashes_yr'], 2)} expected crashes per pond per year "
+            f"under {lead}")
+    per_year = _optional(out, "crashes_per_year.csv", index_col="policy")
+    if per_year is not None and lead in per_year.index:
+        causes = sorted(((float(per_year.loc[lead, f"{c}_crashes_per_pond_yr"]), c)
+                         for c in CAUSES), reverse=True)
+        text += " (" + ", ".join(f"{c} {_num(v, 2)}" for v, c in causes if v > 0) + ")"
+        if "salvaged_g_m2_yr" in per_year.columns:
+            from pondsim.glossary import G_M2_TO_T_HA
+
+            salvage = float(per_year.loc[lead, "salvaged_g_m2_yr"]) * G_M2_TO_T_HA
+            text += (f"; salvage {_num(salvage, 2)} t ha⁻¹ yr⁻¹, "
+                     + ("counted as product" if scenario.crash.salvage_sellable
+                        else "not product"))
+    basis = manifest.get("weather_basis")
+    if basis:
+        text += f"; on {basis}"
+    assumed = "assumption" in str(manifest.get("crash_basis", "assumption")).lower()
+    return text + ("; hazards are ASSUMPTIONS until fitted to the site's own pond log"
+                   if assumed else "")
 
 
-def _bill(bill: pd.DataFrame | None, lead: str) -> str:
+def _washout(summary: pd.DataFrame | None, lead: str) -> str:
+    if summary is None or "washed_out_pct" not in summary.columns:
+        return NOT_AVAILABLE
+    washed = [p for p in summary.index if float(summary.loc[p, "washed_out_pct"]) > 0]
+    if not washed:
+        return "no rule holds the culture at its viable floor long enough to wash it out"
+    if len(washed) == len(summary.index) and len(washed) > 1:
+        share = summary["washed_out_pct"].astype(float)
+        text = (f"every rule and plan, in {_num(share.min(), 0)} to {_num(share.max(), 0)} "
+                "% of members")
+    else:
+        text = "; ".join(f"{p} in {_num(summary.loc[p, 'washed_out_pct'], 0)} % of members"
+                         for p in washed)
+    return ("WASHED OUT (held at the viable floor too long): " + text
+            + (f"; the lead {lead} is one of them, see the plan per season"
+               if lead in washed and len(washed) < len(summary.index) else ""))
+
+
+def _water_and_dewatering(out: Path, scenario) -> str:
+    parts = []
+    water = _optional(out, "pond_water_monthly.csv", index_col="month")
+    if water is not None and "year" in water.index and "hours_above_t_max" in water:
+        y = water.loc["year"]
+        parts.append(f"{_num(y['hours_above_t_max'], 0)} h a year above the strain's "
+                     f"maximum {scenario.strain.t_max_c:g} °C, "
+                     f"{_num(y.get('hours_below_t_min', np.nan), 0)} h below its minimum")
+    check = _optional(out, "dewatering_check.csv", index_col=["policy", "season"])
+    if check is not None:
+        over = sorted({p for (p, _), r in check.iterrows()
+                       if str(r["within_capacity"]) == "no"})
+        cap = scenario.harvest.dewatering_capacity_m3_per_d
+        parts.append("dewatering: no plant capacity set" if cap is None else
+                      f"dewatering over the plant's {cap:,.0f} m³ d⁻¹: " + ", ".join(over)
+                      if over else f"dewatering within the plant's {cap:,.0f} m³ d⁻¹")
+    return "; ".join(parts) if parts else NOT_AVAILABLE
+
+
+def _bill(bill: pd.DataFrame | None, lead: str, per_t: pd.DataFrame | None = None) -> str:
     if bill is None or "year" not in bill.index:
         return f"inputs bill: {NOT_AVAILABLE}"
     y = bill.loc["year"]
@@ -112,19 +168,17 @@ def _bill(bill: pd.DataFrame | None, lead: str) -> str:
             parts.append(f"{_num(y[col], digits)} {label}")
     text = f"for {lead}, per year: " + ", ".join(parts)
     total = next((c for c in bill.columns if c.startswith("total_cost_")), None)
-    per_t = next((c for c in bill.columns if c.startswith("cost_per_t_")), None)
-    legacy = [c for c in bill.columns if c.endswith("_cost")]
+    cost_t = next((c for c in bill.columns if c.startswith("cost_per_t_")), None)
     if total is not None:  # the priced bill: <line>_cost_<currency>, total, per tonne
         currency = total[len("total_cost_"):]
         text += f"; priced inputs {_num(y[total], 0)} {currency} per year"
-        if per_t is not None and np.isfinite(float(y[per_t])):
-            text += f", {_num(y[per_t], 0)} {currency} per tonne of product"
-    elif legacy:
-        cost = float(sum(float(y[c]) for c in legacy))
-        text += f"; priced inputs {_num(cost, 0)} (currency of the scenario) per year"
-        tonnes = float(y["biomass_t"]) if "biomass_t" in y.index else np.nan
-        if np.isfinite(tonnes) and tonnes > 0:
-            text += f", {_num(cost / tonnes, 0)} per tonne of biomass"
+        p50 = f"P50_{currency}_per_t"
+        if per_t is not None and p50 in per_t.columns:
+            r = per_t.iloc[0]
+            text += (f"; per tonne of product P50 {_num(r[p50], 0)} {currency}, "
+                     f"conservative P10 {_num(r[f'P10_{currency}_per_t'], 0)}")
+        elif cost_t is not None and np.isfinite(float(y[cost_t])):
+            text += f", {_num(y[cost_t], 0)} {currency} per tonne of product"
     else:
         text += f"; cost: {NOT_AVAILABLE} (not priced)"
     return text
@@ -165,8 +219,15 @@ def summary_section(out: Path, scenario, manifest: dict) -> str:
             "parameter draws × crash draws):</p>"]
     body += _answer(annual, manifest, farm_ha)
     body.append(_plan(best))
-    facts = [("Crash risk", _crash_risk(annual, manifest, scenario)),
-             ("Inputs bill", _bill(bill, lead))]
+    summary = _optional(out, "summary.csv", index_col="policy")
+    per_t = _optional(out, "inputs_cost_per_t.csv", index_col="figure")
+    check = manifest.get("site_check")
+    facts = [("Site check", ("WARNING: " if str(check).startswith("FAILED") else "")
+              + str(check) if check else NOT_AVAILABLE),
+             ("Washout", _washout(summary, lead)),
+             ("Crash risk", _crash_risk(annual, manifest, scenario, out)),
+             ("Pond water", _water_and_dewatering(out, scenario)),
+             ("Inputs bill", _bill(bill, lead, per_t))]
     body.append('<dl class="facts">' + "".join(
         f"<dt>{esc(k)}</dt><dd>{esc(v)}.</dd>" for k, v in facts) + "</dl>")
     body.append(_top_assumptions(sens))
@@ -181,9 +242,7 @@ def summary_section(out: Path, scenario, manifest: dict) -> str:
         cautions.insert(1, f"Weather: {notes[-1]}")
     body.append('<div class="caution" id="summary-cautions"><strong>Cautions.</strong><ul>'
                 + "".join(f"<li>{esc(c)}</li>" for c in cautions) + "</ul></div>")
-    details = ", ".join(f"{title.lower()} ({i + 1})" for i, (_, title) in
-                        enumerate(SECTIONS) if i)
-    body.append(f'<p class="note">Details follow: {esc(details)}.</p>')
+    body.append(f'<p class="note">Details follow in sections 2 to {len(SECTIONS)}.</p>')
     return "\n".join(body)
 
 

@@ -199,7 +199,7 @@ def risk_calendar_figure(ds, crash, path) -> Path:
     ax1.set_xlim(0.4, 12.6)
     fs.from_zero(ax1, top=max(float(bottom.max()) * 1.15, 1e-3))
     ax1.set_ylabel(f"crashes per pond\n[month$^{{-1}}$], {lead}")
-    ax1.legend(fontsize=8, ncol=len(CAUSES), loc="upper left", bbox_to_anchor=(1.0, 1.0),
+    ax1.legend(fontsize=8, ncol=1, loc="upper left", bbox_to_anchor=(1.0, 1.0),
                title="cause", title_fontsize=8)
     ax1.grid(axis="y", alpha=0.3)
     prob = -np.expm1(-ds["hazard"].astype(float)).mean("member")  # daily crash probability

@@ -357,6 +357,11 @@ class OutputSet:
         except ValueError:
             return path
 
+    def written_line(self, written) -> str:
+        """The terminal line listing the files written (their final paths) and the run."""
+        return ("written: " + ", ".join(str(self.final(p)) for p in written)
+                + f" (run {self.run_id}; {README_NAME}, {MANIFEST_NAME})")
+
     def __enter__(self) -> OutputSet:
         self._created = not self.folder.exists()
         check_output_folder(self.folder)

@@ -132,16 +132,6 @@ class Crash:
     salvage_sellable: bool
     max_season_probability: float
 
-    # Names of the hazard before it had named causes, read by the HTML report until it
-    # shows the causes: the background hazard, and the largest weather term's value.
-    @property
-    def base_hazard_per_d(self) -> float:
-        return self.background_per_d
-
-    @property
-    def stress_hazard_per_d(self) -> float:
-        return self.starvation_hazard_per_d
-
 
 @dataclass(frozen=True)
 class Season:

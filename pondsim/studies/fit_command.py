@@ -9,6 +9,7 @@ import numpy as np
 import pandas as pd
 
 from pondsim.errors import InputError
+from pondsim.results.files import OutputSet, atomic_write, write_csv
 from pondsim.studies.fit_curve import fit_logistic_curve
 from pondsim.studies.fit_growth import PARAMETERS, fit_pilot
 from pondsim.studies.fit_observations import (
@@ -80,8 +81,6 @@ def add_fit_parser(subparsers) -> argparse.ArgumentParser:
 
 
 def _cmd_curve(args, out: Path) -> int:
-    from pondsim.results.files import atomic_write
-
     path = Path(args.observations)
     frame = read_csv_checked(path)
     cols = parse_column_map(getattr(args, "columns", None))
@@ -97,17 +96,18 @@ def _cmd_curve(args, out: Path) -> int:
                              od_factor_g_l=getattr(args, "od_factor", None))
     t = np.asarray((obs.time - obs.time[0]) / pd.Timedelta(hours=1 if unit == "h" else 24),
                    dtype=float)
-    fit = fit_logistic_curve(t, obs.density_g_m3, weights=obs.weight)
-    text = fit.report(time_unit=unit, density_unit="g m-3")
-    print(text)
-    out.mkdir(parents=True, exist_ok=True)
-    written = [atomic_write(out / "fit_parameters.csv",
-                             lambda tmp: fit.table.to_csv(tmp, float_format="%.6g")),
-               atomic_write(out / "fit_report.txt",
-                             lambda tmp: Path(tmp).write_text(text + "\n", encoding="utf-8"))]
-    if not getattr(args, "no_plots", False):
-        written.append(plot_curve(t, obs.density_g_m3, fit, out / "fit.png", unit, "g m-3"))
-    print("\nwritten: " + ", ".join(str(p) for p in written))
+    with OutputSet(out, command="fit") as files:
+        fit = fit_logistic_curve(t, obs.density_g_m3, weights=obs.weight)
+        text = fit.report(time_unit=unit, density_unit="g m-3")
+        print(text)
+        stage = files.dir
+        written = [write_csv(fit.table, stage / "fit_parameters.csv"),
+                   atomic_write(stage / "fit_report.txt", lambda tmp: Path(tmp).write_text(
+                       text + "\n", encoding="utf-8"))]
+        if not getattr(args, "no_plots", False):
+            written.append(plot_curve(t, obs.density_g_m3, fit, stage / "fit.png", unit,
+                                      "g m-3"))
+    print("\n" + files.written_line(written))
     return 0
 
 
@@ -119,7 +119,6 @@ def cmd_fit(args) -> int:
     ``sample_hour``, ``time_unit``, ``no_plots``. Returns the exit status (0); bad input
     raises :class:`InputError`.
     """
-    from pondsim.results.files import atomic_write
     from pondsim.scenario import load_scenario
 
     obs_path = Path(args.observations)
@@ -141,30 +140,28 @@ def cmd_fit(args) -> int:
     free = None
     if getattr(args, "fit", None):
         free = [s.strip() for s in args.fit.split(",") if s.strip()]
-    fit = fit_pilot(obs, scenario, model=model, free=free,
-                    sample_hour=getattr(args, "sample_hour", None),
-                    map_weather_year=bool(getattr(args, "map_weather_year", False)))
-    text = fit.report()
-    print(text)
-    out.mkdir(parents=True, exist_ok=True)
-    series = pd.DataFrame({"time": fit.model.obs.time, "observed_g_m3": obs.density_g_m3,
-                           "fitted_g_m3": fit.fitted, "residual_ln": fit.residuals})
-    table = fit.table.copy()
-    written = [
-        atomic_write(out / "fit_parameters.csv",
-                      lambda tmp: table.to_csv(tmp, float_format="%.6g")),
-        atomic_write(out / "fit_series.csv",
-                      lambda tmp: series.to_csv(tmp, index=False, float_format="%.6g")),
-        atomic_write(out / "fit_report.txt",
-                      lambda tmp: Path(tmp).write_text(text + "\n", encoding="utf-8")),
-        write_fitted_scenario(fit, args.scenario,
-                              out / f"{Path(args.scenario).stem}_fitted.toml"),
-    ]
-    if not getattr(args, "no_plots", False):
-        from pondsim.results.figstyle import context_line
+    with OutputSet(out, command="fit", seed=None, scenario=args.scenario) as files:
+        fit = fit_pilot(obs, scenario, model=model, free=free,
+                        sample_hour=getattr(args, "sample_hour", None),
+                        map_weather_year=bool(getattr(args, "map_weather_year", False)))
+        text = fit.report()
+        print(text)
+        stage = files.dir
+        series = pd.DataFrame({"time": fit.model.obs.time, "observed_g_m3": obs.density_g_m3,
+                               "fitted_g_m3": fit.fitted, "residual_ln": fit.residuals})
+        name = f"{Path(args.scenario).stem}_fitted.toml"
+        written = [
+            write_csv(fit.table, stage / "fit_parameters.csv"),
+            write_csv(series, stage / "fit_series.csv", index=False),
+            atomic_write(stage / "fit_report.txt",
+                         lambda tmp: Path(tmp).write_text(text + "\n", encoding="utf-8")),
+            write_fitted_scenario(fit, args.scenario, out / name, write_to=stage / name),
+        ]
+        if not getattr(args, "no_plots", False):
+            from pondsim.results.figstyle import context_line
 
-        written.append(plot_fit(fit, out / "fit.png", context=context_line(
-            scenario.site.name, scenario.study_name, scenario.strain.name)))
-    print("\nwritten: " + ", ".join(str(p) for p in written))
+            written.append(plot_fit(fit, stage / "fit.png", context=context_line(
+                scenario.site.name, scenario.study_name, scenario.strain.name)))
+    print("\n" + files.written_line(written))
     return 0
 

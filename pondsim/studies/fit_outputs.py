@@ -21,8 +21,11 @@ from pondsim.studies.scenario_copy import edit_toml
 DEMO_SEED = 20250320
 
 
-def write_fitted_scenario(fit: PilotFit, scenario_path, out_path) -> Path:
+def write_fitted_scenario(fit: PilotFit, scenario_path, out_path, *, write_to=None) -> Path:
     """Write a copy of the scenario file with the fitted strain parameters.
+
+    *out_path* is where the copy will live (relative paths are made valid from there);
+    *write_to*, when given, is where it is written now (an output set's staging folder).
 
     The original file is never changed; the copy is written atomically. Relative paths
     (the weather file) are rewritten to stay valid from the copy's folder. Under the
@@ -99,7 +102,7 @@ def write_fitted_scenario(fit: PilotFit, scenario_path, out_path) -> Path:
     def write(tmp):
         Path(tmp).write_text(new_text, encoding="utf-8")
 
-    return atomic_write(out_path, write)
+    return atomic_write(out_path if write_to is None else Path(write_to), write)
 
 
 def plot_fit(fit: PilotFit, path, *, context: str = "") -> Path:
