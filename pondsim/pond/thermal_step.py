@@ -43,7 +43,17 @@ SUBSTEP_K = 4.0
 MAX_SUBSTEPS = 8
 _MIN_COUPLING = 1e-3  # W m-2 K-1, guards the exponential weights against a = 0
 _KELVIN = 273.15
-_JIT = dict(cache=True, error_model="python")
+
+
+def _jit(fn):
+    """Compile *fn* (numba), caching the machine code beside this file when the folder
+    is writable; otherwise (a read-only install, another user's checkout) compile once
+    per process instead of failing at import."""
+    try:
+        return njit(cache=True, error_model="python")(fn)
+    except RuntimeError:  # numba: "cannot cache function ...: no locator available"
+        return njit(cache=False, error_model="python")(fn)
+
 
 #: Rows of the per-step input matrix the compiled loop reads (see :func:`_input_matrix`).
 (_FIXED, _F0, _CFREE, _TVA, _PK, _GAM, _EA, _TA, _G, _TG, _TM, _P, _EPS_SIGMA,
@@ -53,7 +63,7 @@ _JIT = dict(cache=True, error_model="python")
 _N_TERMS = 8
 
 
-@njit(**_JIT)
+@_jit
 def _flux(tw, ts, x, i):
     """Scalar net flux [W m-2] of step *i* and its parts (the loop's copy of
     :func:`heat_flux_terms`): ``(q, lw, latent, convection, ground, makeup heat,
@@ -87,7 +97,7 @@ def _flux(tw, ts, x, i):
     return q, lw, lat, conv, grd, mkq, evap, mk
 
 
-@njit(**_JIT)
+@_jit
 def _flux_slope(tw, ts, x, i):
     """``(q, dq/dT)`` of step *i*: for ts != tw the surface balance and its slope in
     ts only (the ice surface), else the whole balance and its slope in T = ts = tw."""
@@ -118,7 +128,7 @@ def _flux_slope(tw, ts, x, i):
     return q, dq
 
 
-@njit(**_JIT)
+@_jit
 def _step_mean(t, dt, c, x, i):
     """Step-mean temperature of one step of length *dt* from *t* (see the Notes of
     :func:`pondsim.pond.thermal.water_temperature`), by Newton's method."""
@@ -136,7 +146,7 @@ def _step_mean(t, dt, c, x, i):
     return tbar
 
 
-@njit(**_JIT)
+@_jit
 def _ice_surface(x, i, ice0, ice_volumetric_latent):
     """Temperature [°C] of an ice surface losing heat: q_surface(T_s) = k_ice T_s / h."""
     kh = ICE_CONDUCTIVITY / max(ice0 / ice_volumetric_latent, 1e-4)
@@ -162,7 +172,7 @@ def _ice_surface(x, i, ice0, ice_volumetric_latent):
     return ts
 
 
-@njit(**_JIT)
+@_jit
 def _integrate(x, t_start, ice_start, dt, c, record):
     """The compiled loop; returns ``(t_end, ice_end, out)`` with *out* of shape
     (13, n): the 8 flux results of :func:`_flux` at the reported temperature, then
