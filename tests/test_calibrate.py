@@ -496,3 +496,30 @@ def test_cmd_fit_writes_a_whole_output_set(tmp_path, carlson, monkeypatch):
 def test_cmd_fit_needs_a_scenario(tmp_path):
     with pytest.raises(InputError, match="--scenario"):
         cal.cmd_fit(_parse(["fit", str(PILOT), "--out", str(tmp_path)]))
+
+
+def test_unidentified_parameter_keeps_the_scenarios_uncertainty(tmp_path, scenario):
+    # A short or badly dated pilot record can leave a parameter unidentified (SE many
+    # times its estimate: a day-first record read month-first once gave maintenance an
+    # SE/estimate of 7e36). Its SE must not become the copy's [uncertainty] entry (the
+    # copy then failed its own range check and the whole fit ended in an error about a
+    # file the user never wrote): like an infinite SE, the entry goes, and the copy says
+    # why; an SE of 1.39 x the estimate (the demo pilot's light parameter) still counts.
+    from types import SimpleNamespace
+
+    from pondsim.studies.fit_outputs import write_fitted_scenario
+
+    est = {"mu_max_per_d": 1.9, "maintenance_per_d": 1e-6, "k_biomass_m2_g": 0.1}
+    table = pd.DataFrame({"se": [0.1, 7.0, 0.139]}, index=list(est))
+    obs = SimpleNamespace(path=tmp_path / "pilot.csv")
+    model = SimpleNamespace(scenario=scenario, obs=obs,
+                            dates=lambda: pd.DatetimeIndex(["2025-04-01"]))
+    fit = SimpleNamespace(estimates=est, table=table, growth_form="self_shading",
+                          warnings=[], model=model)
+    path = write_fitted_scenario(fit, SCENARIO, tmp_path / "copy.toml")
+    copy = load_scenario(path)
+    spread = {u.parameter: u for u in copy.uncertainty.parameters}
+    assert "maintenance_per_d" not in spread
+    assert spread["mu_max_per_d"].sigma == pytest.approx(0.1 / 1.9, rel=1e-3)
+    assert spread["k_biomass_m2_g"].sigma == pytest.approx(1.39, rel=1e-3)
+    assert "maintenance_per_d is not identified by the pilot record" in path.read_text()

@@ -362,8 +362,8 @@ def test_page_renders_in_headless_chromium(report_dir, tmp_path):
     exe = _browser()
     url = (report_dir / "report.html").resolve().as_uri()
     shot = tmp_path / "report.png"
-    # A window taller than the page, at half scale: 500 x 15000 pixels.
-    _chromium(exe, tmp_path, "--force-device-scale-factor=0.5", "--window-size=1000,30000",
+    # A window taller than the page, at quarter scale: 250 x 15000 pixels.
+    _chromium(exe, tmp_path, "--force-device-scale-factor=0.25", "--window-size=1000,60000",
               f"--screenshot={shot}", url)
     assert shot.is_file(), "chromium wrote no screenshot"
     grey = mpimg.imread(shot)[..., :3].mean(axis=2)

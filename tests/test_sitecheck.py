@@ -167,3 +167,49 @@ def test_cli_strict_exits_2_and_writes_nothing(tmp_path, capsys):
     capsys.readouterr()
     assert cli.main(["weather", str(path)]) == 0  # default: a warning on the summary
     assert "WARNING: site check FAILED" in capsys.readouterr().out
+
+
+@pytest.mark.parametrize("lon, offset, passes", [
+    (-113.9, -7, True),    # the demo: 0.6 h from its meridian
+    (113.9, -7, False),    # longitude sign error
+    (-113.9, 7, False),    # offset sign error
+    (75.99, 8, True),      # UTC+8 far west of its meridian (3 h; from memory: Kashgar)
+    (-157.4, 14, True),    # UTC+14 east of the date line (wraps: 0.5 h)
+    (-9.0, 1, True),       # UTC+1 at 9 deg W (from memory: Galicia)
+    (-3.0, 8, False),      # the wrong zone altogether
+])
+def test_zone_check_of_longitude_against_utc_offset(lon, offset, passes):
+    from pondsim.forcing.sitecheck import ZONE_TOLERANCE_H, zone_mismatch_h
+
+    mismatch = zone_mismatch_h(lon, offset)
+    assert (abs(mismatch) <= ZONE_TOLERANCE_H) == passes
+    assert -12.0 <= mismatch < 12.0
+    assert zone_mismatch_h(-105.0, -7) == pytest.approx(0.0)
+    assert zone_mismatch_h(None, -7) is None
+
+
+def test_clear_sky_site_with_a_longitude_sign_error_is_flagged(tmp_path, capsys):
+    # Clear-sky mode computes its weather from the coordinates as given, so the data
+    # check passes whatever the longitude; before the zone check a sign error in the
+    # longitude ran silently with the sun at night (screen ranked such a row normally).
+    normals = (ROOT / "weather" / "kestrel_flats_normals.toml").read_text(encoding="utf-8")
+    table = normals[normals.index("[normals]") + len("[normals]"):]
+    table = "\n".join(line for line in table.splitlines()  # the scenario takes no rain
+                      if not line.startswith("precipitation_mm"))
+    text = DEMO.read_text(encoding="utf-8")
+    text = text.replace('source = "file"', 'source = "clearsky"')
+    text = text.replace('path = "../weather/kestrel_flats.epw"   # relative to this file\n',
+                        "")
+    text = text.replace("[pond]", "[weather.normals]" + table + "\n[pond]", 1)
+    good = tmp_path / "clear.toml"
+    good.write_text(text, encoding="utf-8")
+    assert cli.main(["weather", str(good)]) == 0
+    assert "site check passed" in capsys.readouterr().out
+    bad = tmp_path / "east.toml"
+    bad.write_text(text.replace("longitude = -113.9", "longitude = 113.9"), encoding="utf-8")
+    assert cli.main(["weather", str(bad)]) == 0
+    out = capsys.readouterr().out
+    assert "WARNING: site check FAILED" in out and "sign of site.longitude" in out
+    assert cli.main(["weather", str(bad), "--strict"]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "longitude 113.9" in err

@@ -102,8 +102,9 @@ def validate_normals(normals: Mapping, *, path=None) -> dict:
         bad = ~np.isfinite(arr) | (arr < lo) | (arr > hi)
         if bad.any():
             m = int(np.flatnonzero(bad)[0])
-            raise InputError(f"{calendar.month_abbr[m + 1]} value {arr[m]:g} {unit} is outside "
-                             f"the allowed range {lo:g} to {hi:g} {unit}", path=path,
+            shown = "" if unit == "1" else f" {unit}"  # a ratio has no unit to print
+            raise InputError(f"{calendar.month_abbr[m + 1]} value {arr[m]:g}{shown} is outside "
+                             f"the allowed range {lo:g} to {hi:g}{shown}", path=path,
                              field=field)
         out[key] = arr
     for key in _REQUIRED_NORMALS:

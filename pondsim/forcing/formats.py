@@ -15,6 +15,7 @@ import pvlib
 from pondsim.errors import InputError, did_you_mean
 from pondsim.forcing.columns import FORMATS, HOUR, OPTIONAL_COLUMNS, REQUIRED_COLUMNS
 from pondsim.forcing.solar import fixed_offset, saturation_vapour_pressure
+from pondsim.forcing.timestamps import parse_times
 
 
 class RawWeather:
@@ -220,11 +221,7 @@ def raw_csv(path: Path, csv_columns, csv_units, time_label) -> RawWeather:
                              path=path, field=f"csv_units.{key}")
         units[key] = u
     raw = pd.read_csv(path, usecols=sorted(set(mapping.values())))
-    try:
-        t = pd.to_datetime(raw[mapping["time"]])
-    except (ValueError, TypeError) as exc:
-        raise InputError(f"cannot parse times in column '{mapping['time']}': {exc}",
-                         path=path, field="time") from None
+    t = pd.Series(parse_times(raw[mapping["time"]], path=path, field="time"))
     if t.isna().any():
         i = int(np.flatnonzero(t.isna().to_numpy())[0])
         raise InputError(f"unparsable time on data row {i + 1}", path=path, field="time")

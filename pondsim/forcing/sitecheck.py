@@ -29,6 +29,12 @@ moved to another climate). Two checks catch it when the forcing is loaded:
    of the hour would give. The circular centroid also works when the error moves the
    sun across midnight.
 
+3. **Zone check** — the longitude against the UTC offset: a site's standard time keeps
+   within a few hours of its mean solar time, ``longitude / 15`` h (wrapped to ±12 h).
+   Beyond :data:`ZONE_TOLERANCE_H` the sign of the longitude or of the offset is almost
+   surely wrong. This check also covers clear-sky mode, whose weather is computed from
+   the coordinates as given and so always passes the data check.
+
 The result goes into the forcing's metadata (``meta["site_check"]``, a one-line text,
 and ``meta["site_check_ok"]``), from there into the run's summary on the terminal, the
 results' netCDF attributes and the output set's README. The scenario key
@@ -61,6 +67,12 @@ NOON_TOLERANCE_H = 0.4
 #: A day counts as clear enough for the noon check when its GHI reaches this fraction
 #: of the clear-sky GHI (assumption).
 CLEAR_DAY_FRACTION = 0.6
+#: Largest difference between the UTC offset and the longitude's mean solar time
+#: (longitude / 15 h, wrapped) that passes [h]. Assumption: civil time zones stray up to
+#: about 3 h from their meridian (from memory: far-western China on UTC+8 at 75 deg E);
+#: a sign error in the longitude or in the offset gives 2 |offset| or 2 |longitude|/15,
+#: which beyond 4 h is not a time zone in use.
+ZONE_TOLERANCE_H = 4.0
 #: Fewer clear days than this: all days with sun are used instead.
 MIN_CLEAR_DAYS = 20
 HOURS_PER_DAY = 24
@@ -183,6 +195,18 @@ def noon_shift_h(ghi, ghi_clear, index: pd.DatetimeIndex) -> tuple[float | None,
     return float(median), int(use.sum())
 
 
+def zone_mismatch_h(longitude, utc_offset_h) -> float | None:
+    """UTC offset minus the longitude's mean solar time, wrapped to [-12, 12) [h].
+
+    ``longitude`` [deg, east positive], ``utc_offset_h`` [h]; None when either is
+    missing. Zero for a site on its zone's meridian (e.g. -105 deg and UTC-7).
+    """
+    lon, offset = _finite(longitude), _finite(utc_offset_h)
+    if lon is None or offset is None:
+        return None
+    return float((offset - lon / 15.0 + 12.0) % 24.0 - 12.0)
+
+
 def check_site(forcing: pd.DataFrame, given: Mapping, header: Mapping | None = None
                ) -> SiteCheck:
     """Run the header check and the data check (module docstring).
@@ -199,6 +223,13 @@ def check_site(forcing: pd.DataFrame, given: Mapping, header: Mapping | None = N
     header = dict(header or {})
     header = {k: _finite(header.get(k)) for k in ("latitude", "longitude", "utc_offset_h")}
     problems = compare_header(given, header)
+    zone = zone_mismatch_h(given.get("longitude"), given.get("utc_offset_h"))
+    if zone is not None and abs(zone) > ZONE_TOLERANCE_H:
+        problems.append(
+            f"UTC offset {float(given['utc_offset_h']):+g} h is {abs(zone):.1f} h from the "
+            f"mean solar time of longitude {float(given['longitude']):g} deg (allowed "
+            f"{ZONE_TOLERANCE_H:g} h): check the sign of site.longitude (east positive) "
+            "and of site.utc_offset_h")
     shift, days = noon_shift_h(forcing["ghi"], forcing["ghi_clear"], forcing.index)
     if shift is not None and abs(shift) > NOON_TOLERANCE_H:
         when = "after" if shift > 0 else "before"

@@ -4,9 +4,13 @@ SETS that land in their folder whole.
 One file
 --------
 :func:`atomic_write` writes through a hidden ``.<name>.<pid>.<random>.part`` file in the
-same folder and renames it into place, so a reader never sees half a file. netCDF goes
+same folder and renames it into place, so a reader never sees half a file; the data are
+flushed to the disk before the rename and the folder entry after it (fsync), so a power
+loss cannot leave an empty file under the final name. netCDF goes
 through memory first (:func:`save`): a full disk or a file-size limit then surfaces as one
-``OSError`` from a plain ``write`` instead of HDF5 library errors on a half-written file.
+``OSError`` from a plain ``write`` instead of HDF5 library errors on a half-written file;
+a Dataset too large for memory is written by HDF5 only after a free-space and file-size
+check against its uncompressed size, and refused with that estimate otherwise.
 Any failed write raises :class:`OutputError` (an :class:`~pondsim.errors.InputError`, so
 the command line prints one message and exits 2) and leaves no file behind.
 
@@ -70,6 +74,10 @@ COMMIT_PREFIX = ".pondsim-commit-"
 LOCK_NAME = ".pondsim.lock"
 #: Datasets larger than this are written straight to the file rather than through memory.
 IN_MEMORY_NETCDF_BYTES = 2 * 1024**3
+#: Allowance for the netCDF/HDF5 structure on top of the raw array bytes in
+#: :func:`netcdf_size_estimate` (assumption: HDF5 headers, chunk indexes and attributes
+#: of a results file take well under 1 % plus a few MB).
+NETCDF_OVERHEAD = (1.01, 16 * 1024**2)
 
 
 class OutputError(InputError):
@@ -99,11 +107,32 @@ def _pid_alive(pid: int) -> bool:
     return True
 
 
+def fsync_path(path: Path) -> None:
+    """Flush a file's data, or a folder's entries, to the disk (``fsync``).
+
+    A rename is durable only once both the renamed file's data and the folder entry are
+    on the disk: without the two fsyncs a power loss shortly after a "finished" write can
+    leave an empty or old file under the new name. File systems that cannot fsync a
+    folder (EINVAL, e.g. some network mounts) are skipped silently.
+    """
+    flags = os.O_RDONLY | (os.O_DIRECTORY if Path(path).is_dir() else 0)
+    fd = os.open(path, flags)
+    try:
+        os.fsync(fd)
+    except OSError as err:
+        if err.errno not in (errno.EINVAL, errno.ENOTSUP):
+            raise
+    finally:
+        os.close(fd)
+
+
 def atomic_write(path: Path, write) -> Path:
     """Write through a temporary file in the same folder, then rename: whole or nothing.
 
     ``write(tmp)`` writes the file at ``tmp``. Any failure (no permission, disk full, ...)
     raises :class:`OutputError` and leaves neither the file nor the temporary behind.
+    Durable: the temporary is flushed to the disk (fsync) before the rename and the
+    folder after it (:func:`fsync_path`).
     """
     path = Path(path)
     try:
@@ -120,7 +149,9 @@ def atomic_write(path: Path, write) -> Path:
     try:
         os.chmod(tmp, 0o666 & ~umask)
         write(tmp)
+        fsync_path(Path(tmp))
         os.replace(tmp, path)
+        fsync_path(path.parent)
     except (OSError, RuntimeError) as err:  # h5py reports I/O failures as RuntimeError
         Path(tmp).unlink(missing_ok=True)
         raise _write_error(path, err) from None
@@ -130,15 +161,54 @@ def atomic_write(path: Path, write) -> Path:
     return path
 
 
-def save(result: xr.Dataset, path: str | Path) -> Path:
-    """Write a results Dataset to netCDF (h5netcdf engine, compressed), atomically.
+def netcdf_size_estimate(result: xr.Dataset) -> int:
+    """Upper estimate of a results file's size [bytes]: the uncompressed bytes of every
+    variable and coordinate plus :data:`NETCDF_OVERHEAD` (compression only shrinks it)."""
+    raw = result.nbytes
+    return int(raw * NETCDF_OVERHEAD[0] + NETCDF_OVERHEAD[1])
 
-    The file is built in memory (below :data:`IN_MEMORY_NETCDF_BYTES`) and written with one
-    plain ``write``, so that a full disk gives a clean error rather than HDF5 failing
-    part-way through its own writes. A file-backed (dask) Dataset, e.g. an outlook held in
-    blocks on disk, is streamed to the file block by block instead, so that writing it
-    does not load it whole.
+
+def _room_for(path: Path, need: int) -> None:
+    """Refuse, before any byte is written, a file of ``need`` bytes that the file system's
+    free space or the process's file-size limit cannot take."""
+    import resource
+
+    folder = path.parent
+    try:
+        free = shutil.disk_usage(folder).free
+    except OSError as err:
+        raise _write_error(path, err) from None
+    limit = resource.getrlimit(resource.RLIMIT_FSIZE)[0]
+    gb = 1024**3
+    if limit != resource.RLIM_INFINITY and need > limit:
+        raise OutputError(f"cannot write: the file would need up to {need / gb:.2f} GB "
+                          f"(uncompressed estimate) but this process may write files of "
+                          f"at most {limit / gb:.2f} GB (ulimit -f); raise the limit, or "
+                          "write less (e.g. screen without --full); nothing was written",
+                          path=path, field="--out")
+    if need > free:
+        raise OutputError(f"cannot write: the file would need up to {need / gb:.2f} GB "
+                          f"(uncompressed estimate) and {free / gb:.2f} GB are free on "
+                          "that disk; free some space, choose another --out folder or "
+                          "write less (e.g. screen without --full); nothing was written",
+                          path=path, field="--out")
+
+
+def save(result: xr.Dataset, path: str | Path) -> Path:
+    """Write a results Dataset to netCDF (h5netcdf engine, compressed), atomically and
+    durably.
+
+    Below :data:`IN_MEMORY_NETCDF_BYTES` the file is built in memory and written with one
+    plain ``write``, so that a full disk gives one clean error rather than HDF5 failing
+    part-way through its own writes. A larger Dataset (e.g. ``screen --full`` over many
+    sites) is written by HDF5 straight to the file, after a check that the disk's free
+    space and the process's file-size limit can take the uncompressed size
+    (:func:`netcdf_size_estimate`); otherwise it is refused with the estimate before any
+    byte is written. A file-backed (dask) Dataset, e.g. an outlook held in blocks on
+    disk, is streamed to the file block by block the same way, so that writing it does
+    not load it whole.
     """
+    path = Path(path)
     encoding = {name: {"zlib": True, "complevel": 4, "shuffle": True}
                 for name, var in result.data_vars.items() if var.dtype.kind in "fiu"}
     lazy = any(var.chunks is not None for var in result.variables.values())
@@ -148,9 +218,11 @@ def save(result: xr.Dataset, path: str | Path) -> Path:
             with open(tmp, "wb") as fh:
                 fh.write(data)
     else:
+        _room_for(path, netcdf_size_estimate(result))
+
         def write(tmp):
             result.to_netcdf(tmp, engine="h5netcdf", encoding=encoding)
-    return atomic_write(Path(path), write)
+    return atomic_write(path, write)
 
 
 def write_csv(table: pd.DataFrame, path: str | Path, *, index: bool = True) -> Path:
@@ -245,12 +317,17 @@ def _move_into_place(commit_dir: Path, folder: Path) -> None:
     (folder / MANIFEST_NAME).unlink(missing_ok=True)  # the old set stops being a set
     for name in set(old.get("files", {})) - set(new["files"]) - {MANIFEST_NAME}:
         (folder / name).unlink(missing_ok=True)
+    parents = {folder}
     for name in new["files"]:
         src = commit_dir / name
         if src.exists():
             (folder / name).parent.mkdir(parents=True, exist_ok=True)
             os.replace(src, folder / name)
+            parents.add((folder / name).parent)
+    for parent in sorted(parents):  # the set's entries reach the disk before its manifest
+        fsync_path(parent)
     os.replace(commit_dir / MANIFEST_NAME, folder / MANIFEST_NAME)
+    fsync_path(folder)
     shutil.rmtree(commit_dir, ignore_errors=True)
 
 
@@ -419,6 +496,7 @@ class OutputSet:
         commit_dir = self.folder / f"{COMMIT_PREFIX}{self.run_id}"
         with _signals_held(), _folder_lock(self.folder):
             os.replace(self.dir, commit_dir)
+            fsync_path(self.folder)  # a power loss now leaves a commit folder to finish
             _move_into_place(commit_dir, self.folder)
 
     def _files(self) -> list[Path]:

@@ -187,7 +187,8 @@ class Inputs:
     carbon_fraction: float | None = None
     n_fraction: float | None = None
     p_fraction: float | None = None
-    uptake_basis: str = "gross_growth"
+    carbon_basis: str = "gross_growth"
+    nutrient_basis: str = "net_growth"
     co2_supply_fraction: float = 1.0
     co2_utilisation: float = 0.7
     n_fertiliser: str = "urea"

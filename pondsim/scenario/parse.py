@@ -132,6 +132,9 @@ RETIRED_KEYS = {
     "crash.stress_hazard_per_d": _CAUSES_NOTE,
     "crash.overshoot_onset": _CAUSES_NOTE,
     "crash.drop_scale": _CAUSES_NOTE,
+    "inputs.uptake_basis": ("split in two: write inputs.carbon_basis (the CO2 line) and "
+                            "inputs.nutrient_basis (the N and P lines), each "
+                            "'gross_growth' or 'net_growth'"),
 }
 
 

@@ -333,12 +333,27 @@ INPUTS_KEYS: dict[str, Key] = {
                       "formula's.", "kg kg-1", 0.0, 0.15),
     "p_fraction": Key("float", None, "Phosphorus share of the dry biomass; overrides "
                       "the formula's.", "kg kg-1", 0.0, 0.05),
-    "uptake_basis": Key("str", "gross_growth", "Biomass that carbon and nutrients are "
-                        "billed on: gross_growth (all biomass formed, including what is "
-                        "later respired, lost in crashes or to the harvester) or "
-                        "net_growth (gross growth less respiration, whose C, N and P "
-                        "return to the medium). Assumption: gross_growth, the larger "
-                        "(conservative) bill.", choices=("gross_growth", "net_growth")),
+    "carbon_basis": Key("str", "gross_growth", "Biomass the CO2 line is billed on: "
+                        "gross_growth (all carbon photosynthesis fixed, including what "
+                        "maintenance respiration later releases as CO2) or net_growth "
+                        "(gross growth less respiration: respired CO2 taken as fixed "
+                        "again). The growth model does not follow dissolved inorganic "
+                        "carbon; assumption: gross_growth, respired CO2 counted as lost "
+                        "to the air (the larger bill).",
+                        choices=("gross_growth", "net_growth")),
+    "nutrient_basis": Key("str", "net_growth", "Biomass the N and P lines are billed "
+                          "on: net_growth (gross growth less respiration = the biomass "
+                          "that is harvested, lost in crashes or left standing) or "
+                          "gross_growth. In the growth model respiration is a "
+                          "first-order loss of standing biomass (pondsim.pond.kinetics."
+                          "maintenance_rate) that takes nothing out of the pond, so the N "
+                          "and P of respired biomass stay in the medium and are taken up "
+                          "again: net_growth is what the ponds consume (model-based "
+                          "default). Purchases follow the running maximum of cumulative "
+                          "uptake, so nutrients released on net-loss days offset later "
+                          "uptake instead of being bought twice. Assumption: complete re-uptake of "
+                          "the released N and P within the pond.",
+                          choices=("net_growth", "gross_growth")),
     "co2_supply_fraction": Key("float", 1.0, "Share of the carbon taken up that is "
                                "supplied as bought CO2 (the rest from the air and the "
                                "medium's alkalinity). Assumption: 1, all of it.", "1",

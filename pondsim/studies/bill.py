@@ -7,10 +7,16 @@ tonne of product is given per member, so its P50/P90 come from the ensemble.
 
 Bases (each line of the bill states its own):
 
-- carbon, nitrogen and phosphorus follow the biomass the ponds take up: gross growth
-  (``inputs.uptake_basis = "gross_growth"``: everything photosynthesis formed, including
-  what is later respired, lost in crashes or left by the harvester) or net growth (gross
-  less respiration). N and P bought are the uptake less the recycled share.
+- carbon follows the biomass photosynthesis fixed (``inputs.carbon_basis``, default
+  ``"gross_growth"``: respired carbon leaves as CO2 and is counted as lost), nitrogen and
+  phosphorus the biomass the ponds keep (``inputs.nutrient_basis``, default
+  ``"net_growth"`` = gross growth less respiration): the growth model's respiration is a
+  first-order loss of standing biomass that removes nothing from the pond, so the N and
+  P of respired biomass stay dissolved and are taken up again. Net growth equals what is
+  harvested, lost in crashes, salvaged or left standing (the engine's ledger). Purchases
+  follow the running maximum of cumulative uptake (:func:`purchases`), so what net-loss
+  days release offsets later uptake. N and P bought are that uptake less the recycled
+  share.
 - product (the per-tonne denominator) is the biomass recovered by harvest (``harvested``,
   after the recovery efficiency).
 - makeup water = (evaporation − rain, floored at zero day by day) + harvested medium not
@@ -32,7 +38,6 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 import xarray as xr
-from scipy import stats
 
 from pondsim.errors import InputError, did_you_mean
 from pondsim.scenario.model import Inputs, Prices
@@ -48,13 +53,26 @@ from pondsim.studies.bill_mixing import (
     raceway_geometry,
     raceway_head_loss,
 )
+from pondsim.studies.quantiles import (
+    CONFIDENCE,
+    exceedance_quantile,
+    member_cube,
+    nested_bootstrap,
+)
 
 _MONTH_ABBR = ("Jan", "Feb", "Mar", "Apr", "May", "Jun", "Jul", "Aug", "Sep", "Oct", "Nov",
                "Dec")
 
 #: Exceedance probabilities of the cost-per-tonne figures: name -> probability that the
-#: cost is higher. P10 is the conservative (high) cost.
-COST_EXCEEDANCE = {"P90": 0.9, "P50": 0.5, "P10": 0.1}
+#: cost is higher (:func:`pondsim.studies.quantiles.exceedance_quantile` gives the
+#: quantile level, 1 - p). P10 is the conservative (high) cost.
+COST_EXCEEDANCE = {name: int(name[1:]) / 100.0 for name in ("P90", "P50", "P10")}
+
+#: Stand-in for an infinite cost per tonne (a member without product) inside the
+#: quantile machinery, which interpolates and would turn inf - inf into NaN; any
+#: interpolated value at or above :data:`_INF_FROM` is reported as infinite again.
+_NO_PRODUCT = 1e300
+_INF_FROM = 1e250
 
 
 def _source(section: str, name: str, value) -> str:
@@ -150,9 +168,12 @@ class Bill:
     cost_per_t : pandas.DataFrame or None
         Ensemble statistics of the annual cost per tonne of product: mean, P90 (low
         cost, exceeded in 90 % of members), P50, P10 (conservative high cost, exceeded in
-        only 10 %), each with a 95 % distribution-free interval; None when not priced.
+        only 10 %), each with a 95 % interval that respects the ensemble's nesting (see
+        :func:`cost_per_tonne_table`); None when not priced.
     member_cost_per_t : numpy.ndarray or None
-        Annual cost per tonne of product of every member [currency t-1].
+        Annual cost per tonne of product of the farm in each realisation (one per
+        member, its ponds drawn from the member's crash replicates, see
+        :func:`farm_cost_per_tonne`) [currency t-1].
     notes : list of str
     mixing : dict
         Hydraulics of one pond (:func:`pond_mixing`).
@@ -179,6 +200,28 @@ def _member_day(da: xr.DataArray, members: int) -> np.ndarray:
     return np.broadcast_to(values, (members, values.shape[-1]))
 
 
+def purchases(uptake: np.ndarray) -> np.ndarray:
+    """Daily purchases that meet a daily uptake which may be negative on some days.
+
+    Parameters
+    ----------
+    uptake : ndarray, shape (member, day)
+        Uptake per day (negative where more is released than taken up).
+
+    Returns
+    -------
+    ndarray, shape (member, day)
+        Purchases, never negative: the day-to-day increase of the running maximum of
+        cumulative uptake, ``P_t = max(0, U_1, ..., U_t) - max(0, U_1, ..., U_{t-1})``
+        with ``U_t`` the cumulative uptake. What a net-loss day releases stays in the
+        medium and is used before anything is bought again. For an uptake that is never
+        negative, the purchases are the uptake itself.
+    """
+    cum = np.cumsum(uptake, axis=-1)
+    peak = np.maximum.accumulate(np.maximum(cum, 0.0), axis=-1)
+    return np.diff(peak, axis=-1, prepend=0.0)
+
+
 def daily_quantities(ds: xr.Dataset, policy: str, inputs: Inputs, *, area_m2: float,
                      count: int, depth_m: float) -> tuple[dict, list, dict, list]:
     """Whole-farm quantities per member and day for one policy.
@@ -197,7 +240,8 @@ def daily_quantities(ds: xr.Dataset, policy: str, inputs: Inputs, *, area_m2: fl
     Returns
     -------
     quantities : dict of name -> ndarray (member, day)
-        ``product_t``, ``uptake_biomass_t``, ``co2_t``, ``n_t``, ``p_t``, one
+        ``product_t``, ``uptake_biomass_t`` (carbon basis), ``nutrient_biomass_t``
+        (N and P basis), ``co2_t``, ``n_t``, ``p_t``, one
         ``<fertiliser>_t`` per product, ``makeup_water_m3``, ``harvest_volume_m3``,
         ``mixing_MWh``, ``harvest_MWh``, ``harvests``.
     lines : list of Line
@@ -221,19 +265,22 @@ def daily_quantities(ds: xr.Dataset, policy: str, inputs: Inputs, *, area_m2: fl
     comp = biomass_composition(inputs.composition_formula, inputs.carbon_fraction,
                                inputs.n_fraction, inputs.p_fraction)
     gross = _member_day(sel["gross_growth"], members)
-    if inputs.uptake_basis == "net_growth":
-        uptake = gross - _member_day(sel["respiration"], members)
-        basis = "net growth (gross growth less respiration), member mean"
-    else:
-        uptake = gross
-        basis = ("gross growth (all biomass formed, incl. what is respired, lost in "
-                 "crashes or to the harvester), member mean")
-    uptake_t = uptake * g_to_t
+    net = gross - _member_day(sel["respiration"], members)
+    texts = {"gross_growth": "gross growth (all biomass formed, incl. what is later "
+                             "respired, lost in crashes or to the harvester)",
+             "net_growth": "net growth (gross growth less respiration = biomass "
+                           "harvested, lost in crashes or left standing)"}
+    carbon_uptake = purchases(net if inputs.carbon_basis == "net_growth" else gross)
+    nutrient_uptake = purchases(net if inputs.nutrient_basis == "net_growth" else gross)
+    basis = f"{texts[inputs.carbon_basis]}, member mean"
+    nutrient_text = texts[inputs.nutrient_basis]
+    uptake_t = carbon_uptake * g_to_t
+    nutrient_t = nutrient_uptake * g_to_t
     product_t = _member_day(sel["harvested"], members) * g_to_t
     carbon_t = uptake_t * comp["carbon_fraction"]
     co2_t = carbon_t * CO2_PER_C * inputs.co2_supply_fraction / inputs.co2_utilisation
-    n_t = uptake_t * comp["n_fraction"] * (1.0 - inputs.n_recycle_fraction)
-    p_t = uptake_t * comp["p_fraction"] * (1.0 - inputs.p_recycle_fraction)
+    n_t = nutrient_t * comp["n_fraction"] * (1.0 - inputs.n_recycle_fraction)
+    p_t = nutrient_t * comp["p_fraction"] * (1.0 - inputs.p_recycle_fraction)
     products = fertiliser_plan(n_t, p_t, inputs.n_fertiliser, inputs.p_fertiliser)
 
     frac = _member_day(sel["harvest_fraction"], members)
@@ -270,8 +317,8 @@ def daily_quantities(ds: xr.Dataset, policy: str, inputs: Inputs, *, area_m2: fl
         harvest_mwh = harvest_m3 * inputs.harvest_kwh_per_m3 * 1e-3
     harvests = (frac > 0).astype(float) * count
 
-    quantities = {"product_t": product_t, "uptake_biomass_t": uptake_t, "co2_t": co2_t,
-                  "n_t": n_t, "p_t": p_t,
+    quantities = {"product_t": product_t, "uptake_biomass_t": uptake_t,
+                  "nutrient_biomass_t": nutrient_t, "co2_t": co2_t, "n_t": n_t, "p_t": p_t,
                   **{f"{name}_t": mass for name, mass in products.items()},
                   "makeup_water_m3": makeup_m3, "harvest_volume_m3": harvest_m3,
                   "mixing_MWh": mixing_mwh, "harvest_MWh": harvest_mwh,
@@ -282,9 +329,13 @@ def daily_quantities(ds: xr.Dataset, policy: str, inputs: Inputs, *, area_m2: fl
     lines = [
         Line("product", "product_t", "t AFDW", "biomass recovered by harvest (after "
              "recovery losses), member mean", "simulation: harvested"),
-        Line("biomass taken up", "uptake_biomass_t", "t AFDW", basis,
-             _source("inputs", "uptake_basis", inputs.uptake_basis)),
-        Line("CO2", "co2_t", "t CO2", f"uptake x C {comp['carbon_fraction']:.4f} x "
+        Line("biomass taken up", "uptake_biomass_t", "t AFDW", f"carbon basis: {basis}",
+             _source("inputs", "carbon_basis", inputs.carbon_basis)),
+        Line("biomass assimilated (N, P)", "nutrient_biomass_t", "t AFDW",
+             f"nutrient basis: {nutrient_text}, member mean",
+             _source("inputs", "nutrient_basis", inputs.nutrient_basis)),
+        Line("CO2", "co2_t", "t CO2", f"{inputs.carbon_basis.replace('_', ' ')} x C "
+             f"{comp['carbon_fraction']:.4f} x "
              f"{CO2_PER_C:.4f} t CO2/t C x supply share {inputs.co2_supply_fraction:g} / "
              f"utilisation {inputs.co2_utilisation:g}",
              f"{comp_src}; {_source('inputs', 'co2_utilisation', inputs.co2_utilisation)}",
@@ -296,7 +347,8 @@ def daily_quantities(ds: xr.Dataset, policy: str, inputs: Inputs, *, area_m2: fl
         lines.append(Line(
             name, f"{name}_t", "t product",
             f"supplies N {100 * comp['n_fraction']:.2f} % and P "
-            f"{100 * comp['p_fraction']:.2f} % of the biomass taken up, less recycle (N "
+            f"{100 * comp['p_fraction']:.2f} % of the {nutrient_text.split(' (')[0]}, "
+            f"less recycle (N "
             f"{inputs.n_recycle_fraction:g}, P {inputs.p_recycle_fraction:g}); the P "
             "product's N is credited",
             f"{comp_src}; {fert.basis}", key, "t-1", name))
@@ -329,39 +381,6 @@ def daily_quantities(ds: xr.Dataset, policy: str, inputs: Inputs, *, area_m2: fl
 
 
 # ---------------------------------------------------------------------------------------
-# Statistics
-# ---------------------------------------------------------------------------------------
-
-def exceedance_value(values, p_exceed: float) -> float:
-    """Value exceeded with probability *p_exceed* (the (1 − p) quantile, linear
-    interpolation; ``inf`` members, e.g. no product, count as the highest costs)."""
-    values = np.sort(np.asarray(values, dtype=float))
-    q = 1.0 - p_exceed
-    pos = q * (values.size - 1)
-    lo, hi = int(np.floor(pos)), int(np.ceil(pos))
-    if np.isinf(values[hi]) or np.isinf(values[lo]):
-        return float(values[hi]) if pos > lo else float(values[lo])
-    return float(values[lo] + (values[hi] - values[lo]) * (pos - lo))
-
-
-def quantile_interval(values, q: float, level: float = 0.95) -> tuple[float, float]:
-    """Distribution-free confidence interval of the *q* quantile from a sample.
-
-    The ranks bracket the quantile with binomial(n, q) probabilities (order-statistic
-    interval; e.g. Hahn & Meeker 1991, *Statistical Intervals*, Wiley). Returns NaN
-    bounds when the sample is too small for the level.
-    """
-    x = np.sort(np.asarray(values, dtype=float))
-    n = x.size
-    alpha = 1.0 - level
-    lo = int(stats.binom.ppf(alpha / 2, n, q))          # rank (1-based) of the lower bound
-    hi = int(stats.binom.ppf(1 - alpha / 2, n, q)) + 1  # rank of the upper bound
-    lower = x[lo - 1] if lo >= 1 else np.nan
-    upper = x[hi - 1] if hi <= n else np.nan
-    return float(lower), float(upper)
-
-
-# ---------------------------------------------------------------------------------------
 # The bill
 # ---------------------------------------------------------------------------------------
 
@@ -388,7 +407,7 @@ def price_lines(quantities: dict, lines: list, prices: Prices) -> dict:
     return costs
 
 
-def scenario_bill(ds: xr.Dataset, scenario, policy: str) -> Bill:
+def scenario_bill(ds: xr.Dataset, scenario, policy: str, *, seed: int = 0) -> Bill:
     """The inputs bill of *policy*, priced with the scenario's ``[prices]``.
 
     Parameters
@@ -399,6 +418,8 @@ def scenario_bill(ds: xr.Dataset, scenario, policy: str) -> Bill:
     scenario : Scenario
         Its ``pond``, ``inputs`` and ``prices``.
     policy : str
+    seed : int, default 0
+        Seed of the bootstrap of the cost-per-tonne intervals.
 
     Returns
     -------
@@ -434,17 +455,19 @@ def scenario_bill(ds: xr.Dataset, scenario, policy: str) -> Bill:
                 product > 0, table[f"total_cost_{currency}"] / product, np.inf)
             annual_product = monthly["product_t"].sum(axis=1)
             annual_cost = total.sum(axis=1)
-            member_cost_t = np.where(annual_product > 0, annual_cost / annual_product,
-                                     np.inf)
-        per_t = cost_per_tonne_table(member_cost_t, currency)
+        unc = getattr(scenario, "uncertainty", None)
+        farm = farm_cost_per_tonne(annual_cost, annual_product, ds, pond.count,
+                                   getattr(unc, "farm_crash_correlation", 0.0), seed=seed)
+        member_cost_t = farm.ravel()
+        per_t = cost_per_tonne_table(farm, currency, seed=seed)
         unpriced = sorted({line.price_key for line in lines
                            if line.price_key and getattr(prices, line.price_key) is None})
         if unpriced:
             notes.append("not priced: " + ", ".join(f"prices.{k}" for k in unpriced)
                          + " (left out of the total)")
         if np.isinf(member_cost_t).any():
-            notes.append(f"{int(np.isinf(member_cost_t).sum())} member(s) yield no "
-                         "product: their cost per tonne is infinite")
+            notes.append(f"{int(np.isinf(member_cost_t).sum())} farm realisation(s) yield "
+                         "no product: their cost per tonne is infinite")
     else:
         notes.append("not priced: the scenario has no [prices] section")
 
@@ -466,21 +489,120 @@ def scenario_bill(ds: xr.Dataset, scenario, policy: str) -> Bill:
                 member_cost_per_t=member_cost_t, mixing=mixing, notes=notes)
 
 
-def cost_per_tonne_table(member_cost_t, currency: str) -> pd.DataFrame:
+def farm_cost_per_tonne(annual_cost, annual_product, design: xr.Dataset | None,
+                        count: int, correlation: float = 0.0, *,
+                        seed: int | None = 0) -> np.ndarray:
+    """Annual cost per tonne of the whole farm, one realisation per member.
+
+    Parameters
+    ----------
+    annual_cost, annual_product : array-like, shape (n_member,)
+        A member's farm total [currency], [t]: its one pond's trajectory for all
+        ``count`` ponds.
+    design : xarray.Dataset or None
+        Member coordinates (:func:`~pondsim.studies.quantiles.member_cube`); None: all
+        members are crash replicates of one weather year and draw.
+    count : int
+        Ponds in the farm.
+    correlation : float [1]
+        Crash correlation between ponds (``uncertainty.farm_crash_correlation``).
+    seed : int, optional
+
+    Returns
+    -------
+    ndarray, shape (1, n_years, n_draws, n_replicates) [currency t-1]
+        ``sum_i cost_i / sum_i product_i`` over the farm's ponds, each pond taking the
+        crash history of one of its cell's replicates exactly as the farm yield does
+        (:func:`pondsim.studies.outlook.farm_totals`, the same draws for cost and
+        product); ``inf`` where the farm yields nothing.
+
+    Notes
+    -----
+    A member's bill treats every pond of the farm as that member's pond, i.e. all ponds
+    crash together; for means that changes nothing, but for P10/P90 it would stretch the
+    cost per tonne as if the ponds' crashes were perfectly correlated, while the farm's
+    yield P50/P90 use independent (or ``correlation``-linked) ponds. Without crash
+    differences between replicates the farm's value is the member's exactly.
+    """
+    from pondsim.studies.outlook import farm_totals
+
+    per_pond = np.stack([np.asarray(annual_cost, dtype=float),
+                         np.asarray(annual_product, dtype=float)]) / count
+    cube = member_cube(per_pond, design) if design is not None else \
+        per_pond.reshape(2, 1, 1, -1)
+    cost, product = farm_totals(cube, count, correlation, seed=seed)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        out = np.where(product > 1e-12 * np.abs(cube[1]).max(initial=0.0) * count,
+                       cost / product, np.inf)
+    return out[None]
+
+
+def cost_per_tonne_table(member_cost_t, currency: str, design: xr.Dataset | None = None,
+                         *, confidence: float = CONFIDENCE,
+                         seed: int | None = 0) -> pd.DataFrame:
     """Ensemble statistics of the annual cost per tonne of product, one row.
 
-    Columns ``members``, ``mean_<cur>_per_t``, then for P90, P50 and P10 (probability
-    0.9, 0.5 and 0.1 that the cost is HIGHER; P10 is the conservative figure) the value
-    and its 95 % distribution-free interval (``*_low``, ``*_high``).
+    Parameters
+    ----------
+    member_cost_t : array-like, shape (n_member,) or (1, n_years, n_draws, n_replicates)
+        [currency t-1]
+        Annual cost per tonne of every member (or farm realisation); ``inf`` without
+        product. A 4-D array is taken as already arranged by the ensemble's design
+        (:func:`farm_cost_per_tonne`).
+    currency : str
+    design : xarray.Dataset, optional
+        The results whose member coordinates ``weather_year``, ``draw`` and
+        ``replicate`` give the ensemble's nesting (:func:`~pondsim.studies.quantiles.
+        member_cube`). Without it (or without those coordinates) the members are taken
+        as independent.
+    confidence : float, default 0.95
+    seed : int, optional
+        Seed of the bootstrap.
+
+    Returns
+    -------
+    pandas.DataFrame
+        Columns ``members``, ``mean_<cur>_per_t``, then for P90, P50 and P10
+        (probability 0.9, 0.5 and 0.1 that the cost is HIGHER; P10 is the conservative
+        figure) the value and its interval (``*_low``, ``*_high``), then
+        ``weather_years``, ``confidence_pct`` and ``interval_method``.
+
+    Notes
+    -----
+    The same machinery as the yield's P50/P90 (:func:`~pondsim.studies.quantiles.
+    nested_bootstrap`): with several weather years, whole weather years (with their
+    draws and crash replicates) are resampled, because members sharing a year are not
+    independent; with one varying level, the distribution-free order-statistic
+    interval. Values are pooled quantiles with linear interpolation; a member without
+    product counts as the highest cost, and a figure that falls on or interpolates
+    towards such members is infinite.
     """
     x = np.asarray(member_cost_t, dtype=float)
+    if x.ndim == 4:
+        cube, x = x, x.ravel()
+    elif design is not None:
+        cube = member_cube(x[None, :], design)
+    else:
+        cube = x.reshape(1, 1, 1, -1)
+    finite = np.where(np.isinf(cube), _NO_PRODUCT, cube)
+    levels = [exceedance_quantile(name) for name in COST_EXCEEDANCE]
+    point, low, high = (np.where(v >= _INF_FROM, np.inf, v)[0]
+                        for v in nested_bootstrap(finite, levels, confidence=confidence,
+                                                  seed=seed))
+    varying = [n for n in cube.shape[1:] if n > 1]
+    method = ("cluster bootstrap over weather years" if cube.shape[1] > 1
+              and len(varying) > 1 else
+              "bootstrap over parameter draws" if len(varying) > 1 else
+              "order statistics (independent members)")
     row = {"members": int(x.size),
            f"mean_{currency}_per_t": float(x.mean()) if np.isfinite(x).all() else np.inf}
-    for name, p in COST_EXCEEDANCE.items():
-        row[f"{name}_{currency}_per_t"] = exceedance_value(x, p)
-        lo, hi = quantile_interval(x, 1.0 - p)
-        row[f"{name}_{currency}_per_t_low"] = lo
-        row[f"{name}_{currency}_per_t_high"] = hi
+    for k, name in enumerate(COST_EXCEEDANCE):
+        row[f"{name}_{currency}_per_t"] = float(point[k])
+        row[f"{name}_{currency}_per_t_low"] = float(low[k])
+        row[f"{name}_{currency}_per_t_high"] = float(high[k])
+    row["weather_years"] = int(cube.shape[1])
+    row["confidence_pct"] = 100.0 * confidence
+    row["interval_method"] = method
     return pd.DataFrame([row], index=pd.Index(["cost per tonne of product"], name="figure"))
 
 
@@ -489,18 +611,20 @@ def describe(bill: Bill) -> str:
     cost per tonne (P90 / P50 / P10 with their meaning)."""
     cur = bill.currency
     out = [f"inputs bill for '{bill.policy}' (whole farm, member means per year):"]
+    w = max(len(str(n)) for n in bill.lines.index)
     for name, r in bill.lines.iterrows():
         cost = {"yes": f"{r['cost_per_yr']:,.0f} {cur}", "not priced": "not priced"}.get(
             r["priced"], "")
-        out.append(f"  {name:>23}: {r['quantity_per_yr']:>12,.2f} {r['unit']:<13} "
+        out.append(f"  {name:>{w}}: {r['quantity_per_yr']:>12,.2f} {r['unit']:<13} "
                    f"{cost:>14}")
-        out.append(f"  {'':>23}  basis: {r['basis']}")
+        out.append(f"  {'':>{w}}  basis: {r['basis']}")
     if cur:
         year = bill.monthly.loc["year"]
-        out.append(f"  {'total':>23}: {year[f'total_cost_{cur}']:>12,.0f} {cur} per year")
+        out.append(f"  {'total':>{w}}: {year[f'total_cost_{cur}']:>12,.0f} {cur} per year")
         row = bill.cost_per_t.iloc[0]
         out.append(f"cost per tonne of product over {int(row['members'])} members "
-                   f"[{cur} t-1], 95 % intervals in brackets:")
+                   f"[{cur} t-1], {row['confidence_pct']:.0f} % intervals in brackets "
+                   f"({row['interval_method']}):")
         meaning = {"P90": "low, optimistic: exceeded in 90 % of members",
                    "P50": "median", "P10": "CONSERVATIVE: exceeded in only 10 %"}
         for name, text in meaning.items():
@@ -520,5 +644,6 @@ def default_inputs() -> Inputs:
 
 
 __all__ = ["Bill", "COST_EXCEEDANCE", "Line", "cost_per_tonne_table", "daily_quantities",
-           "default_inputs", "describe", "exceedance_value", "pond_mixing", "price_lines",
-           "quantile_interval", "scenario_bill"]
+           "default_inputs", "describe", "farm_cost_per_tonne", "pond_mixing", "price_lines",
+           "purchases",
+           "scenario_bill"]

@@ -34,6 +34,7 @@ import numpy as np
 import pandas as pd
 
 from pondsim.errors import InputError, did_you_mean
+from pondsim.forcing.timestamps import parse_times
 
 EVENTS = ("inoculated", "crash", "end", "harvest", "sample")
 COLUMNS = ("pond", "date", "event", "value")
@@ -116,7 +117,8 @@ def parse_pond_log(frame: pd.DataFrame, *, path=None) -> PondLog:
         raise InputError(f"row {rows[i]}: unknown event {text['event'].iloc[i]!r}"
                          f"{did_you_mean(event.iloc[i], EVENTS)}; allowed: "
                          + ", ".join(EVENTS), path=path, field="event")
-    dates = pd.to_datetime(text["date"], format="mixed", errors="coerce")
+    dates = pd.Series(parse_times(text["date"], path=path, field="date", coerce=True),
+                      index=text.index)
     if dates.isna().any():
         i = int(np.flatnonzero(dates.isna().to_numpy())[0])
         raise InputError(f"row {rows[i]}: {text['date'].iloc[i]!r} is not a date; write "

@@ -35,6 +35,7 @@ import numpy as np
 import pandas as pd
 
 from pondsim.errors import InputError, did_you_mean
+from pondsim.forcing.timestamps import parse_times
 
 #: Density units accepted, as factors to g m-3 (1 g L-1 = 1000 g m-3 = 1000 mg L-1).
 DENSITY_UNITS = {"g/m3": 1.0, "g/l": 1000.0, "mg/l": 1.0, "od": None}
@@ -235,12 +236,7 @@ def parse_observations(frame: pd.DataFrame, *, path=None, columns: dict | None =
     # Time: parse, check order and uniqueness.
     tcol = cols["time"]
     raw = frame[tcol]
-    try:
-        time = pd.to_datetime(raw.astype(str).str.strip(), format="mixed")
-    except (ValueError, TypeError) as err:
-        raise InputError(f"cannot read the times as dates ({err}); write them like "
-                         "2025-03-20 or 2025-03-20 08:00", path=path, field=tcol) from None
-    time = pd.DatetimeIndex(time)
+    time = parse_times(raw, path=path, field=tcol)
     if time.isna().any():
         row = int(np.flatnonzero(time.isna())[0])
         raise InputError(f"row {row + 2}: missing time", path=path, field=tcol)

@@ -20,6 +20,15 @@ from pondsim.studies.scenario_copy import edit_toml
 #: Seed of the demo pilot file ``scenarios/kestrel_flats_pilot.csv``.
 DEMO_SEED = 20250320
 
+#: Largest relative standard error (SE / estimate) a fitted parameter may have for its
+#: SE to become the copy's ``[uncertainty]`` spread [1]. Beyond it the SE is treated like
+#: an infinite one (the parameter's entry is removed, with a warning in the copy).
+#: Assumption: a lognormal sigma of 10 spans a factor of e^40 in its central 95 %, i.e.
+#: the pilot says nothing about the parameter (a badly dated record once gave 7e36).
+MAX_FIT_RELATIVE_SE = 10.0
+#: Scale of t_opt_c for that test [degC] (assumption): an SE above 10 x 10 degC.
+T_OPT_SCALE_C = 10.0
+
 
 def write_fitted_scenario(fit: PilotFit, scenario_path, out_path, *, write_to=None) -> Path:
     """Write a copy of the scenario file with the fitted strain parameters.
@@ -34,7 +43,8 @@ def write_fitted_scenario(fit: PilotFit, scenario_path, out_path, *, write_to=No
     Fitted parameters that ``[uncertainty]`` can carry get the fit's own uncertainty
     there (replacing what the scenario had): lognormal with sigma = SE/estimate for
     positive parameters, normal with sd = SE for t_opt_c; a parameter without a finite
-    SE loses its entry. Draws from these are independent, so the fit's correlations
+    SE, or with one beyond :data:`MAX_FIT_RELATIVE_SE` times its estimate, loses its
+    entry (said in the copy's header). Draws from these are independent, so the fit's correlations
     (reported beside) are not carried over. The copy is validated before it is written.
     Returns the path written.
     """
@@ -60,12 +70,19 @@ def write_fitted_scenario(fit: PilotFit, scenario_path, out_path, *, write_to=No
         strain["capacity_table_g_m3"] = [float(f"{v:.6g}") for v in table]
     updates = {"strain": strain}
     spread = {}
+    unidentified = []
     for name, value in est.items():
         if name not in UNCERTAIN_PARAMETERS:
             continue
         se = float(fit.table.at[name, "se"])
+        scale = abs(value) if name != "t_opt_c" else T_OPT_SCALE_C
         if not (math.isfinite(se) and se > 0):
             spread[name] = None
+        elif not se <= MAX_FIT_RELATIVE_SE * scale:
+            spread[name] = None
+            unidentified.append(f"{name} is not identified by the pilot record (SE "
+                                f"{se:.3g}, more than {MAX_FIT_RELATIVE_SE:g} x "
+                                f"{scale:.3g}): its [uncertainty] entry is removed")
         elif name == "t_opt_c" or value <= 0:
             spread[name] = {"distribution": "normal", "sd": float(f"{se:.4g}")}
         else:
@@ -87,7 +104,7 @@ def write_fitted_scenario(fit: PilotFit, scenario_path, out_path, *, write_to=No
               f"to {obs_name} ({stamp}).\n# Fitted ({fit.growth_form}): "
               + ", ".join(f"{n} = {v:.4g} ± {fit.table.at[n, 'se']:.2g}"
                           for n, v in est.items()) + "\n")
-    header += "".join(f"# WARNING: {w}\n" for w in fit.warnings)
+    header += "".join(f"# WARNING: {w}\n" for w in [*fit.warnings, *unidentified])
     header += ("# [uncertainty] entries of fitted parameters hold the fit's standard errors "
                "(independent draws;\n# the fit's correlations are in fit_report.txt).\n"
                if spread else "")

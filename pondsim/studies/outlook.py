@@ -19,6 +19,7 @@ from pondsim.studies.quantiles import (
     CONFIDENCE,
     EXCEEDANCE,
     format_interval,
+    member_cube,
     nested_bootstrap,
 )
 from pondsim.studies.uncertainty import distributions, sample_draws, sobol
@@ -70,35 +71,6 @@ def _real_years(scenario):
         y.index = target.index
         out.append(y)
     return out
-
-
-def member_cube(values: np.ndarray, ds: xr.Dataset) -> np.ndarray:
-    """Per-member values arranged by the ensemble's design.
-
-    Parameters
-    ----------
-    values : ndarray, shape (n_policy, n_member)
-    ds : xarray.Dataset
-        With member coordinates ``weather_year``, ``draw`` (numbered within its weather
-        year when draws are nested) and ``replicate``.
-
-    Returns
-    -------
-    ndarray, shape (n_policy, n_years, n_draws, n_replicates)
-    """
-    member = np.arange(ds.sizes["member"])
-
-    def index(name):
-        v = ds[name].values if name in ds.coords else np.zeros_like(member)
-        return np.unique(v, return_inverse=True)[1]
-
-    iy, idr, ir = index("weather_year"), index("draw"), index("replicate")
-    cube = np.full((values.shape[0], iy.max() + 1, idr.max() + 1, ir.max() + 1), np.nan)
-    cube[:, iy, idr, ir] = values
-    if np.isnan(cube).any():
-        raise InputError("the ensemble is not complete over weather years, draws and "
-                         "replicates", field="member")
-    return cube
 
 
 def farm_totals(pond, count: int, correlation: float = 0.0, seed: int | None = 0):

@@ -27,12 +27,26 @@ Two intervals for a quantile estimated from a Monte Carlo ensemble:
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
+import xarray as xr
 from scipy import stats
 
 from pondsim.errors import InputError
 
 #: Exceedance name -> quantile of the yield distribution (P90 = 10th percentile).
 EXCEEDANCE = {"P50": 0.50, "P75": 0.25, "P90": 0.10}
+
+
+def exceedance_quantile(name: str) -> float:
+    """Quantile level of an exceedance name: ``"P90"`` -> 0.10 (the value exceeded with
+    probability 0.90), ``"P10"`` -> 0.90. The one convention of every pondsim output,
+    for a yield as for a cost (for a cost, P90 is the low figure, P10 the high one)."""
+    if not (name[:1] == "P" and name[1:].isdigit() and 0 < int(name[1:]) < 100):
+        raise InputError(f"not an exceedance name: {name!r} (expected P1 ... P99)",
+                         field="exceedance")
+    return 1.0 - int(name[1:]) / 100.0
+
+
 #: Default confidence level of every Monte Carlo interval [1].
 CONFIDENCE = 0.95
 #: Default number of bootstrap resamples (common practice: 200-1000 for percentile
@@ -154,3 +168,39 @@ def format_interval(name: str, value: float, low: float, high: float, unit: str,
 
     return (f"{name} {f(value)} {unit}, {100 * confidence:.0f} % CI "
             f"{f(low)}\u2013{f(high)}")
+
+
+def member_cube(values: np.ndarray, ds: xr.Dataset) -> np.ndarray:
+    """Per-member values arranged by the ensemble's design.
+
+    Parameters
+    ----------
+    values : ndarray, shape (n_policy, n_member)
+    ds : xarray.Dataset
+        With member coordinates ``weather_year``, ``draw`` (numbered within its weather
+        year when draws are nested) and ``replicate``.
+
+    Returns
+    -------
+    ndarray, shape (n_policy, n_years, n_draws, n_replicates)
+    """
+    member = np.arange(ds.sizes["member"])
+
+    def index(name):
+        v = ds[name].values if name in ds.coords else np.zeros_like(member)
+        return np.unique(v, return_inverse=True)[1]
+
+    iy, idr, ir = index("weather_year"), index("draw"), index("replicate")
+    if "replicate" not in ds.coords:
+        # members without a replicate number: the members of each (year, draw) cell are
+        # its replicates, in member order (e.g. a `run`: crash replicates of one year)
+        ir = pd.DataFrame({"y": iy, "d": idr}).groupby(["y", "d"]).cumcount().to_numpy()
+    if len(np.unique(np.stack([iy, idr, ir]), axis=1)[0]) != member.size:
+        raise InputError("two members share a weather year, draw and replicate",
+                         field="member")
+    cube = np.full((values.shape[0], iy.max() + 1, idr.max() + 1, ir.max() + 1), np.nan)
+    cube[:, iy, idr, ir] = values
+    if np.isnan(cube).any():
+        raise InputError("the ensemble is not complete over weather years, draws and "
+                         "replicates", field="member")
+    return cube
