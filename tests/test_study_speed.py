@@ -55,7 +55,7 @@ def test_memory_estimate_is_the_measured_size(demo, tmp_path):
     scenario, forcing = demo
     # The compiled engine when it is ported (tracemalloc slows the numpy engine).
     scenario = scenario.replace(run=dataclasses.replace(scenario.run, engine="compiled"))
-    members = 20
+    members = 50  # the per-member part dominates, as in any run worth checking
     sim.simulate(scenario, members=2, forcing=forcing, progress=False)  # compile, import
     sim._PHYSICS_CACHE.clear()  # the estimate includes the hourly light and water table
     tracemalloc.start()

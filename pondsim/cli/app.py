@@ -23,6 +23,7 @@ from pondsim.cli.common import (
     MEMBERS_HELP,
     OUTLOOK_REPLICATES,
     YEARS_HELP,
+    add_place_options,
     add_strict_option,
     check_arguments,
 )
@@ -118,6 +119,7 @@ def _parser() -> argparse.ArgumentParser:
     o.add_argument("--no-sensitivity", action="store_true", help="skip the Sobol indices")
     o.add_argument("--out", default=None, metavar="DIR",
                    help="output folder (default: out/<scenario name>-outlook)")
+    add_place_options(o, "blocks of weather years")
     add_strict_option(o)
 
     t = sub.add_parser("tune", help="tune the harvest rule of each season",
@@ -134,6 +136,7 @@ def _parser() -> argparse.ArgumentParser:
     t.add_argument("--no-refine", action="store_true", help="grid search only")
     t.add_argument("--out", default=None, metavar="DIR",
                    help="output folder (default: out/<scenario name>-tune)")
+    add_place_options(t, "groups of candidate rules")
     add_strict_option(t)
 
     from pondsim.report.build import add_report_parser

@@ -30,6 +30,18 @@ def add_strict_option(parser) -> None:
                         "warn (weather.site_check)")
 
 
+def add_place_options(parser, pieces: str) -> None:
+    """``--workers N`` | ``--scheduler ADDRESS``: where a study's pieces run (as for
+    ``screen``); the results are the same wherever they run."""
+    where = parser.add_mutually_exclusive_group()
+    where.add_argument("--workers", type=int, default=None,
+                       help=f"local worker processes for the {pieces} (default 1: serial, "
+                       "in this process; each worker takes a few seconds to start)")
+    where.add_argument("--scheduler", metavar="ADDRESS",
+                       help="dask.distributed scheduler, e.g. tcp://host:8786 (start one "
+                       "with `dask scheduler` and workers with `dask worker ADDRESS`)")
+
+
 def load_checked_scenario(args):
     """The scenario of ``args.scenario``, in strict site-check mode under ``--strict``."""
     import dataclasses

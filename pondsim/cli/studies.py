@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import tempfile
 import time
 from pathlib import Path
 
@@ -13,6 +14,7 @@ from pondsim.cli.common import (
     load_checked_scenario,
     print_site_check,
 )
+from pondsim.studies.scheduling import describe_place, open_runner
 
 
 def cmd_outlook(args) -> int:
@@ -37,15 +39,19 @@ def cmd_outlook(args) -> int:
     members = args.members or (max(scenario.run.members, OUTLOOK_REPLICATES) if crashes
                                else scenario.run.members)
     seed = scenario.run.seed if args.seed is None else args.seed
-    _check_memory(scenario, members, n_years * n_draws)
-    with _output_set(args, "outlook", "-outlook", seed) as files:
+    _check_memory(scenario, members, min(n_years, _block_years(scenario, n_draws, members))
+                  * n_draws)
+    with _output_set(args, "outlook", "-outlook", seed) as files, \
+            tempfile.TemporaryDirectory(prefix="pondsim-outlook-blocks-") as spill, \
+            open_runner(args.workers or 1, args.scheduler) as runner:
         t0 = time.perf_counter()
         print(f"{scenario.study_name}: outlook, {n_draws} parameter draw(s) per weather "
               f"year x {members} crash replicate(s)", flush=True)
         ds, meta = run_outlook(scenario, n_years=n_years, n_draws=n_draws, members=members,
                                seed=seed, converge=not args.fixed, target_pct=args.target,
                                max_members=args.max_members,
-                               report=lambda s: print(s, flush=True))
+                               report=lambda s: print(s, flush=True), runner=runner,
+                               spill_dir=Path(spill))
         annual = annual_table(ds, count=scenario.pond.count, seed=seed,
                               crash_correlation=unc.farm_crash_correlation)
         bands = monthly_bands(ds)
@@ -78,10 +84,12 @@ def cmd_outlook(args) -> int:
 
         written += outlook_figures(ds, bands, sens, out, policy=best,
                                    annual_table=annual)
+        ds.close()
     r = annual.loc[best]
     print(f"\n{r['weather_years']:.0f} weather years x {n_draws} draws each "
           f"({r['parameter_draws']:.0f} distinct) x {members} crash replicate(s) = "
-          f"{r['members']:.0f} members per policy, {elapsed:.1f} s")
+          f"{r['members']:.0f} members per policy, {elapsed:.1f} s "
+          f"({describe_place(args.workers or 1, args.scheduler)})")
     print_site_check(ds.attrs)
     for note in meta.get("notes", [])[-1:]:
         print(f"  note: {note}")
@@ -124,6 +132,12 @@ def cmd_outlook(args) -> int:
     return 0
 
 
+def _block_years(scenario, n_draws: int, members: int) -> int:
+    from pondsim.studies.outlook_blocks import years_per_block
+
+    return years_per_block(n_draws, members, len(scenario.policies) + len(scenario.plans))
+
+
 def _ci_text(row, name, unit) -> str:
     """``"17.3 (15.9–18.4)"`` from an annual-table row; an open side shows ``?``."""
     def f(v):
@@ -164,10 +178,12 @@ def cmd_tune(args) -> int:
     scenario = load_checked_scenario(args)
     n_years = args.years or min(scenario.uncertainty.weather_years, 8)
     seed = scenario.run.seed if args.seed is None else args.seed
-    with _output_set(args, "tune", "-tune", seed) as files:
+    with _output_set(args, "tune", "-tune", seed) as files, \
+            open_runner(args.workers or 1, args.scheduler) as runner:
         t0 = time.perf_counter()
         result = tune_scenario(scenario, n_years=n_years, members=args.members, seed=seed,
-                               refine=not args.no_refine, progress=scenario.run.progress)
+                               refine=not args.no_refine, progress=scenario.run.progress,
+                               runner=runner)
         names = [p.name for p in scenario.policies] + [p.name for p in scenario.plans]
         original = relocate_text(Path(args.scenario).read_text(encoding="utf-8"), scenario,
                                  files.folder)
@@ -183,7 +199,7 @@ def cmd_tune(args) -> int:
     h, limit = scenario.harvest, scenario.crash.max_season_probability
     print(f"{scenario.study_name}: tuned over {n_years} weather years x {args.members} crash "
           f"replicates, checked on {n_years} fresh weather years and crash draws, "
-          f"{elapsed:.1f} s")
+          f"{elapsed:.1f} s ({describe_place(args.workers or 1, args.scheduler)})")
     print_site_check(result.meta)
     print()
     limits = [f"P(>= 1 crash) <= {limit:.0%} per season", "no washout (culture held at its "

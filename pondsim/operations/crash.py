@@ -237,12 +237,24 @@ class CrashModel:
 
     @staticmethod
     def streams(seed: int | None, stream_of_member) -> np.ndarray:
-        """Uniform draws [0, 1) of shape (n_members, 366), one row per member's stream."""
+        """Uniform draws [0, 1) of shape (n_members, 366), one row per member's stream.
+
+        Stream *k* is row *k* of one PCG64 sequence read row by row; only the rows from
+        the smallest to the largest stream asked for are drawn (the generator is advanced
+        past the rows before, one 64-bit output per double), so a block of members whose
+        streams start at *k* gets exactly the draws it would get in the whole ensemble.
+        """
         stream_of_member = np.asarray(stream_of_member, dtype=np.intp)
-        n_streams = int(stream_of_member.max()) + 1 if stream_of_member.size else 0
-        gen = np.random.Generator(np.random.PCG64(seed))
-        draws = gen.random((n_streams, DAYS_PER_STREAM), dtype=np.float64)
-        return draws[stream_of_member]
+        if not stream_of_member.size:
+            return np.zeros((0, DAYS_PER_STREAM))
+        first = int(stream_of_member.min())
+        n_streams = int(stream_of_member.max()) + 1 - first
+        bits = np.random.PCG64(seed)
+        if first:
+            bits.advance(first * DAYS_PER_STREAM)
+        draws = np.random.Generator(bits).random((n_streams, DAYS_PER_STREAM),
+                                                 dtype=np.float64)
+        return draws[stream_of_member - first]
 
     @staticmethod
     def draw(draws, day: int, parts):

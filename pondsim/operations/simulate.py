@@ -132,9 +132,12 @@ def _light_and_water(forcing: pd.DataFrame, scenario: Scenario) -> pd.DataFrame:
 
 
 #: Weather years whose light and water tables are kept for reuse within a process
-#: (~1 MB each): a study that simulates the same years again (``tune`` three times,
-#: ``outlook`` then its Sobol step, ``report``) computes each year's energy balance once.
-PHYSICS_CACHE_SIZE = 128
+#: (~1.8 MB each): a study that simulates the same year again (the scenario's own year in
+#: ``compare``, the Sobol step and ``report``; a file's real years in every outlook round)
+#: computes its energy balance once. Kept small so that memory does not grow with an
+#: outlook's synthetic weather years (each is used once; recomputing a year costs
+#: ~0.1 s since the heat balance is compiled).
+PHYSICS_CACHE_SIZE = 8
 _PHYSICS_CACHE: OrderedDict[str, pd.DataFrame] = OrderedDict()
 
 
@@ -271,7 +274,8 @@ def operation_of(scenario: Scenario) -> Operation:
 
 def simulate(scenario: Scenario, members: int | None = None, seed: int | None = None,
              *, progress: bool | None = None, forcing=None, weather_years=None,
-             draws: dict | None = None, weather_basis: str | None = None) -> xr.Dataset:
+             draws: dict | None = None, weather_basis: str | None = None,
+             stream_offset: int = 0) -> xr.Dataset:
     """Simulate a year of the scenario for every policy and member.
 
     Parameters
@@ -298,6 +302,10 @@ def simulate(scenario: Scenario, members: int | None = None, seed: int | None = 
         Plain words for the weather years (e.g. "20 synthetic years resampled from ..."),
         stored in the Dataset and printed beside crash figures (default: the scenario's
         weather year, or the number of weather years).
+    stream_offset : int
+        Random stream of the first member of each policy (member *j* takes stream
+        ``stream_offset + j``): a block of an ensemble's weather years run on its own
+        (``pondsim.studies.outlook``) draws the crashes it would draw in the whole one.
 
     Returns
     -------
@@ -322,7 +330,8 @@ def simulate(scenario: Scenario, members: int | None = None, seed: int | None = 
     rules, names = build_rules(scenario.policies, scenario.plans, scenario.seasons, dates,
                                repeat=per_policy)
     set_of_member = np.tile(np.repeat(np.arange(drivers.n_sets), reps), len(names))
-    stream = np.tile(np.arange(per_policy), len(names))  # common random numbers
+    # common random numbers: member j of every policy takes the same stream
+    stream = np.tile(np.arange(per_policy) + int(stream_offset), len(names))
     bar = _progress_bar(show, drivers.n_days, rules.n_members)
     try:
         daily = integrate(drivers, rules, operation_of(scenario),
@@ -346,8 +355,10 @@ BYTES_PER_SERIES_DAY = 140
 #: Peak bytes of a run that do not grow with the members: the hourly forcing, light and
 #: water tables and driver arrays of one driver set (weather year x draw) and the
 #: Dataset's per-day variables; measured with tracemalloc on the demo as the intercept of
-#: peak against members (about 14 MB at 4 policies), rounded up.
-BYTES_PER_DRIVER_SET = 16_000_000
+#: peak against members: about 14 MB while the heat balance was a loop over Python lists,
+#: 3-13 MB since it is compiled (the upper value when xarray writes netCDF to memory
+#: without dask loaded; 20 and 200 members measured).
+BYTES_PER_DRIVER_SET = 6_000_000
 
 
 def memory_estimate(scenario: Scenario, members: int, n_sets: int = 1) -> int:

@@ -445,7 +445,7 @@ def water_temperature(forcing, pond, *, wind_height_m=10.0, upper_limit_c=None,
                          field="spinup_years")
     step_s = _step_seconds(forcing.index)
     heat_capacity = WATER_DENSITY * WATER_HEAT_CAPACITY * float(pond.depth_m)
-    columns = {k: inputs[k].to_numpy(dtype=float).tolist() for k in inputs.columns}
+    columns = {k: inputs[k].to_numpy(dtype=float) for k in inputs.columns}
 
     t0 = float(forcing["temp_air"].iloc[0])
     ice0 = 0.0

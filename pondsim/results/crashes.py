@@ -3,6 +3,7 @@ what weather and which hazard values every crash figure stands on."""
 
 from __future__ import annotations
 
+import numpy as np
 import pandas as pd
 import xarray as xr
 
@@ -32,17 +33,22 @@ def crashes_by_cause(ds: xr.Dataset) -> pd.DataFrame:
     ``weather_basis`` (what the numbers stand on).
     """
     cause = ds["crash_cause"] if "crash_cause" in ds else ds["crashed"]
-    month = ds["date"].dt.month
+    if "member" not in cause.dims:
+        cause = cause.expand_dims(member=[0])
+    # one read of the (small, int8) cause codes; then counts per policy, cause and month
+    codes = np.asarray(cause.transpose("policy", "member", "day").values)
+    month = np.asarray(ds["date"].dt.month.values)
     rows = []
-    for pol in ds["policy"].values:
-        c = cause.sel(policy=pol)
-        counts = {name: (c == i + 1).groupby(month).sum("day").mean("member")
+    for j, pol in enumerate(ds["policy"].values):
+        c = codes[j]
+        counts = {name: np.array([(c[:, month == m] == i + 1).sum(axis=1).mean()
+                                  if (month == m).any() else 0.0 for m in range(1, 13)])
                   for i, name in enumerate(CAUSES)}
         for m in range(1, 13):
             row = {"policy": str(pol), "month": m}
             total = 0.0
             for name, v in counts.items():
-                value = float(v.sel(month=m)) if m in v["month"].values else 0.0
+                value = float(v[m - 1])
                 row[f"{name}_crashes_per_pond"] = value
                 total += value
             row["all_crashes_per_pond"] = total

@@ -23,7 +23,8 @@ MARKED = (50, 90)
 
 def annual_yield_t_ha(ds):
     """Annual harvested yield per policy and member [t ha-1 yr-1]."""
-    return ds["harvested"].sum("day") * G_M2_TO_T_HA * 365.0 / ds.sizes["day"]
+    # computed here: the outlook's Dataset may be file-backed (one read, not one per use)
+    return (ds["harvested"].sum("day") * G_M2_TO_T_HA * 365.0 / ds.sizes["day"]).compute()
 
 
 def exceedance_value(values, pct: float) -> float:

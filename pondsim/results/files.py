@@ -204,12 +204,15 @@ def save(result: xr.Dataset, path: str | Path) -> Path:
     sites) is written by HDF5 straight to the file, after a check that the disk's free
     space and the process's file-size limit can take the uncompressed size
     (:func:`netcdf_size_estimate`); otherwise it is refused with the estimate before any
-    byte is written.
+    byte is written. A file-backed (dask) Dataset, e.g. an outlook held in blocks on
+    disk, is streamed to the file block by block the same way, so that writing it does
+    not load it whole.
     """
     path = Path(path)
     encoding = {name: {"zlib": True, "complevel": 4, "shuffle": True}
                 for name, var in result.data_vars.items() if var.dtype.kind in "fiu"}
-    if result.nbytes < IN_MEMORY_NETCDF_BYTES:
+    lazy = any(var.chunks is not None for var in result.variables.values())
+    if result.nbytes < IN_MEMORY_NETCDF_BYTES and not lazy:
         def write(tmp):
             data = result.to_netcdf(engine="h5netcdf", encoding=encoding)
             with open(tmp, "wb") as fh:

@@ -14,6 +14,7 @@ import xarray as xr
 from pondsim.errors import InputError
 from pondsim.glossary import G_M2_TO_T_HA
 from pondsim.operations.simulate import load_forcing, simulate
+from pondsim.studies.outlook_blocks import run_blocks, with_member_dim
 from pondsim.studies.quantiles import (
     CONFIDENCE,
     EXCEEDANCE,
@@ -209,7 +210,8 @@ def monthly_bands(ds: xr.Dataset) -> pd.DataFrame:
     ``pct90``; ``pct90`` is the high value) and the mean over members of the month's
     harvested productivity [g m-2 d-1]."""
     month = ds["date"].dt.month
-    monthly = ds["harvested"].groupby(month).mean("day")  # (policy, member, month)
+    # (policy, member, month); computed once (the outlook's Dataset may be file-backed)
+    monthly = ds["harvested"].groupby(month).mean("day").compute()
     rows = []
     for pol in ds["policy"].values:
         for m in monthly["month"].values:
@@ -249,27 +251,21 @@ def sensitivity(scenario, policy: str, *, n: int, seed: int, forcing=None) -> pd
     return sobol(model, dists, n, seed)
 
 
-def _round(scenario, *, n_years, n_draws, members, seed, progress, real):
+def _round(scenario, *, n_years, n_draws, members, seed, progress, real, runner=None,
+           spill_dir=None, block_years=None):
     """One round of the ensemble: its weather years (new synthetic ones, or the real
-    ones) x draws nested in each year x crash replicates."""
+    ones) x draws nested in each year x crash replicates, in blocks of weather years
+    (:mod:`pondsim.studies.outlook_blocks`)."""
     years, meta = (real if real is not None else weather_years(scenario, n_years, seed))
     draws = (sample_draws(scenario, n_draws, seed, n_years=len(years))
              if scenario.uncertainty.parameters else {})
-    ds = simulate(scenario, members=members, seed=seed, forcing=(years[0], meta),
-                  weather_years=years, draws=draws or None, progress=progress,
-                  weather_basis=years_basis(scenario, meta, len(years)))
+    ds = run_blocks(scenario, years, draws or None, members=members, n_draws=n_draws,
+                    seed=seed, meta=meta, weather_basis=years_basis(scenario, meta,
+                                                                    len(years)),
+                    runner=runner, spill_dir=spill_dir, block_years=block_years,
+                    progress=progress)
     ds.attrs["draws_nested"] = 1
     return ds, meta
-
-
-def _with_member_dim(ds: xr.Dataset) -> xr.Dataset:
-    """Give every weather-only variable the member dimension, so rounds concatenate."""
-    out = ds.copy()
-    for name, var in ds.data_vars.items():
-        if "member" not in var.dims and "day" in var.dims:
-            out[name] = var.expand_dims(member=ds["member"]).transpose(
-                *(("member",) + var.dims))
-    return out
 
 
 def _merge_rounds(parts, axis: str) -> xr.Dataset:
@@ -282,7 +278,7 @@ def _merge_rounds(parts, axis: str) -> xr.Dataset:
     sizes = {"weather_year": "weather_years", "draw": "parameter_draws",
              "replicate": "replicates"}
     for ds in parts:
-        d = _with_member_dim(ds)
+        d = with_member_dim(ds)
         d = d.assign_coords({axis: d[axis] + offset[axis]})
         offset[axis] += int(ds.attrs[sizes[axis]])
         pieces.append(d)
@@ -296,7 +292,8 @@ def _merge_rounds(parts, axis: str) -> xr.Dataset:
 def run_outlook(scenario, *, n_years: int, n_draws: int | None = None, members: int = 1,
                 seed: int | None = None, progress: bool | None = None,
                 converge: bool = False, target_pct: float | None = None,
-                max_members: int | None = None, report=None):
+                max_members: int | None = None, report=None, runner=None,
+                spill_dir=None, block_years: int | None = None):
     """The outlook ensemble: weather years x parameter draws x crash replicates.
 
     Parameters
@@ -325,6 +322,16 @@ def run_outlook(scenario, *, n_years: int, n_draws: int | None = None, members: 
         Default ``uncertainty.max_members``.
     report : callable, optional
         ``report(text)`` after each round (e.g. ``print``).
+    runner : pondsim.studies.scheduling.Runner, optional
+        Where the blocks of weather years run (default: in this process); the results
+        do not depend on it.
+    spill_dir : path, optional
+        Folder for the blocks' daily outputs: memory then stays flat in the number of
+        weather years and the returned Dataset is backed by those files (keep the folder
+        until done with it). Default: everything in memory.
+    block_years : int, optional
+        Weather years per block (default
+        :func:`pondsim.studies.outlook_blocks.years_per_block`).
 
     Returns
     -------
@@ -355,7 +362,8 @@ def run_outlook(scenario, *, n_years: int, n_draws: int | None = None, members: 
         # round 1 keeps the given seed, so a single round is the plain ensemble
         sub = seed if k == 0 else int(seeds[k])
         ds_k, meta = _round(scenario, n_years=size_y, n_draws=size_d, members=size_r,
-                            seed=sub, progress=progress, real=real_pair)
+                            seed=sub, progress=progress, real=real_pair, runner=runner,
+                            spill_dir=spill_dir, block_years=block_years)
         parts.append(ds_k)
         ds = _merge_rounds(parts, axis)
         ds.attrs["weather_basis"] = years_basis(scenario, meta,

@@ -109,8 +109,30 @@ def best_original(outcome: PlanOutcome, limits: Limits, among) -> int:
     return int(clean[np.argmax(outcome.value[clean].mean(axis=1))])
 
 
+def _run_group(job):
+    """One group of plans (a picklable task for :func:`run_plans_on`)."""
+    ens, plans, period_of_day, n_seasons = job
+    return run_plans(ens, plans, period_of_day, n_seasons)
+
+
+def run_plans_on(runner, ens: Ensemble, plans, period_of_day,
+                 n_seasons: int | None = None) -> PlanOutcome:
+    """:func:`~pondsim.operations.plan_runs.run_plans`, with the plans split into one
+    contiguous group per worker of *runner* (:mod:`pondsim.studies.scheduling`) when it
+    has several and there are enough plans. Every plan's members take the same random
+    streams whichever group it is in (common random numbers), so the outcome is the
+    same as in one pass."""
+    n_seasons = len(plans[0]) if n_seasons is None else n_seasons
+    if runner is None or not runner.parallel or len(plans) < 2 * runner.workers:
+        return run_plans(ens, plans, period_of_day, n_seasons)
+    edges = np.linspace(0, len(plans), runner.workers + 1).round().astype(int)
+    jobs = [(ens, plans[a:b], period_of_day, n_seasons)
+            for a, b in zip(edges[:-1], edges[1:], strict=True) if b > a]
+    return stack(runner.map(_run_group, jobs))
+
+
 def coordinate_search(ens: Ensemble, policies, start, period_of_day, limits: Limits,
-                      max_passes: int = 4, extra=()):
+                      max_passes: int = 4, extra=(), runner=None):
     """Best plan from *policies* season by season, each season judged on whole years.
 
     Each pass runs the current plan and every one-season change of it in one engine
@@ -121,6 +143,8 @@ def coordinate_search(ens: Ensemble, policies, start, period_of_day, limits: Lim
 
     Plans in *extra* (e.g. the scenario's own policies and plans) ride along in the
     first pass, on the same members.
+
+    *runner* (:mod:`pondsim.studies.scheduling`) spreads each pass over its workers.
 
     Returns ``(plan, outcome, row, extra_outcome)``: the plan (list of policies), the
     :class:`PlanOutcome` of the pass that evaluated it, its row there, and the outcome
@@ -142,7 +166,7 @@ def coordinate_search(ens: Ensemble, policies, start, period_of_day, limits: Lim
         n_search = len(plans)
         if k == 0 and len(extra):
             plans = plans + [list(e) for e in extra]
-        out = run_plans(ens, plans, period_of_day, n_seasons)
+        out = run_plans_on(runner, ens, plans, period_of_day, n_seasons)
         if n_search < len(plans):
             extra_out = select(out, slice(n_search, None))
             out = select(out, slice(0, n_search))

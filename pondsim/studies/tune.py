@@ -55,6 +55,7 @@ from pondsim.studies.seasons import (
     coordinate_search,
     keep_new_rule,
     offence,
+    run_plans_on,
     select,
     stack,
     violations,
@@ -164,14 +165,15 @@ def _refine(ens, plan, season, period_of_day, best: Policy, limits: Limits, k_me
 
 def tune_plan(ens: Ensemble, seasons, dates, start_plan: list[Policy], *, limit: float,
               refine: bool = True, maxfev: int = 12, progress=None,
-              dewatering_m3_per_d: float | None = None):
+              dewatering_m3_per_d: float | None = None, runner=None):
     """Tune each season's rule; returns ``(plan, table)``.
 
     ``table`` has one row per season: the chosen rule, its whole-year objective
     ``objective_g_m2`` [g m-2 per year, member mean], its crash probability in the
     season, washout share, the farm's peak dewatering load [m3 d-1], and whether it meets
     the limits (``within_risk_limit`` for the crash limit alone, ``within_limits`` for
-    all).
+    all). *runner* (:mod:`pondsim.studies.scheduling`) spreads each season's candidate
+    pass over its workers (same results); the Nelder-Mead steps run one at a time.
     """
     limits = Limits(limit, dewatering_m3_per_d)
     floor = float(ens.operation.floor_g_m3)
@@ -187,7 +189,7 @@ def tune_plan(ens: Ensemble, seasons, dates, start_plan: list[Policy], *, limit:
         cands = candidates(k_mean, floor)
         # The current rule competes too, so a season is never made worse by the grid.
         pool = [plan[s]] + cands
-        out = run_plans(ens, [_with(plan, s, c) for c in pool], period_of_day)
+        out = run_plans_on(runner, ens, [_with(plan, s, c) for c in pool], period_of_day)
         i, _ = best_index(out, limits, season=s)
         best, best_out = pool[i], select(out, [i])
         if refine:
@@ -301,7 +303,7 @@ class TuneResult:
 
 
 def tune_scenario(scenario, *, n_years: int, members: int, seed: int | None = None,
-                  refine: bool = True, progress: bool = True) -> TuneResult:
+                  refine: bool = True, progress: bool = True, runner=None) -> TuneResult:
     """Tune the scenario's plan per season over ``n_years`` weather years and
     ``members`` crash replicates each, then check it on fresh draws.
 
@@ -313,7 +315,9 @@ def tune_scenario(scenario, *, n_years: int, members: int, seed: int | None = No
     of the tuned plan in place (:func:`pondsim.studies.seasons.keep_new_rule`: the rule
     that breaks the limits less, else the tuned rule only where its mean paired gain
     exceeds :data:`Z_KEEP` standard errors); (4) the recommended plan against the best
-    original policy or plan on the same fresh draws.
+    original policy or plan on the same fresh draws. *runner*
+    (:mod:`pondsim.studies.scheduling`) spreads the passes of many plans over its
+    workers; the results do not depend on it.
     """
     from pondsim.operations.simulate import build_drivers, hourly_light_and_water
     from pondsim.studies.outlook import weather_years
@@ -331,10 +335,10 @@ def tune_scenario(scenario, *, n_years: int, members: int, seed: int | None = No
     ens, dates, meta = ensemble(seed, seed)
     period_of_day = season_of_day(dates, scenario.seasons)
     originals, original_names = scenario_plans(scenario)
-    out = run_plans(ens, originals, period_of_day)
+    out = run_plans_on(runner, ens, originals, period_of_day)
     i, _ = best_index(out, limits)
     start, _, _, _ = coordinate_search(ens, scenario.policies, originals[i],
-                                       period_of_day, limits)
+                                       period_of_day, limits, runner=runner)
     bar = None
     if progress:
         from tqdm.auto import tqdm
@@ -344,7 +348,8 @@ def tune_scenario(scenario, *, n_years: int, members: int, seed: int | None = No
         tuned, table = tune_plan(ens, scenario.seasons, dates, start, limit=limits.
                                  crash_probability, refine=refine,
                                  progress=None if bar is None else bar.update,
-                                 dewatering_m3_per_d=limits.dewatering_m3_per_d)
+                                 dewatering_m3_per_d=limits.dewatering_m3_per_d,
+                                 runner=runner)
     finally:
         if bar is not None:
             bar.close()
@@ -355,7 +360,7 @@ def tune_scenario(scenario, *, n_years: int, members: int, seed: int | None = No
     fresh, _, _ = ensemble(seed + 1, seed + 1)
     changed = [s for s in range(len(names)) if tuned[s] is not start[s]]
     trial = [tuned] + [_with(tuned, s, start[s]) for s in changed]
-    out = run_plans(fresh, trial, period_of_day)
+    out = run_plans_on(runner, fresh, trial, period_of_day)
     plan = list(tuned)
     gain = np.full(len(names), np.nan)
     se = np.full(len(names), np.nan)
@@ -378,7 +383,7 @@ def tune_scenario(scenario, *, n_years: int, members: int, seed: int | None = No
     table["recommended_rule"] = [describe(plan[names.index(n)]) for n in table.index]
 
     entries = [plan] + originals
-    out = run_plans(fresh, entries, period_of_day)
+    out = run_plans_on(runner, fresh, entries, period_of_day)
     v = violations(out, limits)[0]
     table["recommended_within_limits"] = [
         bool(v[:, 0].max() == 0 and v[names.index(n), 1:].max() == 0) for n in table.index]
