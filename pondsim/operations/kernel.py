@@ -68,7 +68,24 @@ from pondsim.pond import kinetics
 COMPILED_LIGHT = {"steele": 0, "monod": 1}
 _FORM_SELF_SHADING, _FORM_LOGISTIC = 0, 1
 _LEDGER = ("inoculated", "grown", "respired", "removed", "salvaged", "lost")
-_JIT = dict(cache=True, error_model="numpy")
+
+
+def _probe():  # pragma: no cover - only compiled
+    return 0
+
+
+def _disk_cache_possible() -> bool:
+    """Whether numba can keep this module's machine code on disk (beside this file, or in
+    the user's cache folder); a read-only install without either compiles once per
+    process instead of failing at import."""
+    try:
+        njit(cache=True)(_probe)
+    except RuntimeError:  # numba: "cannot cache function ...: no locator available"
+        return False
+    return True
+
+
+_JIT = dict(cache=_disk_cache_possible(), error_model="numpy")
 
 #: Whether this kernel implements the numpy engine's current semantics. False: every
 #: call runs on the numpy engine (kept as a switch for the next change of the engine).
