@@ -106,9 +106,10 @@ class SiteCheck:
 
     def text(self) -> str:
         """One line for the run summary, the netCDF attributes and the README."""
-        noon = ("noon check not possible (no daylight data)" if self.noon_shift_h is None
-                else f"irradiance peak {self.noon_shift_h:+.2f} h from the computed solar "
-                     f"noon (median over {self.days_used} days)")
+        shift = None if self.noon_shift_h is None else round(self.noon_shift_h, 2) + 0.0
+        noon = ("noon check not possible (no daylight data)" if shift is None
+                else f"irradiance peak {shift:+.2f} h from the computed solar "
+                     f"noon (median over {self.days_used} days)")  # + 0.0: no "-0.00"
         if self.ok:
             has_header = any(v is not None for v in self.header.values())
             return ("passed: " + ("file header agrees; " if has_header else
