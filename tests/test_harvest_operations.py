@@ -241,3 +241,24 @@ def test_a_tuned_rule_must_beat_the_existing_one_on_fresh_draws():
     assert keep_new_rule(ok, (0.0, 0.0, 0.7), gain=-50.0, se=1.0, z=2.0)
     assert not keep_new_rule((0.0, 0.0, 0.02), ok, gain=50.0, se=1.0, z=2.0)
     assert keep_new_rule((0.0, 0.5, 0.0), (0.1, 0.0, 0.0), gain=0.0, se=1.0, z=2.0)
+
+
+def test_lead_policy_passes_over_rules_that_wash_the_culture_out():
+    """The business case leads with the best P50 among rules that keep the culture above
+    its viable floor (compare's per-season rule, applied to the year)."""
+    import pandas as pd
+    import xarray as xr
+
+    from pondsim.results.tables import lead_policy
+
+    annual = pd.DataFrame({"P50_t_ha_yr": [30.0, 20.0, 10.0]},
+                          index=pd.Index(["mine", "steady", "slow"], name="policy"))
+    washed = np.zeros((3, 4, 5), dtype=np.int8)  # policy x member x day
+    washed[0, 3, 2] = 1  # one member of the highest-yield rule washes out once
+    ds = xr.Dataset({"washed_out": (("policy", "member", "day"), washed),
+                     "at_floor": (("policy", "member", "day"), washed.astype(bool))},
+                    coords={"policy": ["mine", "steady", "slow"]})
+    assert lead_policy(annual, ds) == "steady"
+    ds["washed_out"][:] = 1  # every rule washes out: the highest P50, flagged elsewhere
+    assert lead_policy(annual, ds) == "mine"
+    assert lead_policy(annual, ds.drop_vars(["washed_out", "at_floor"])) == "mine"

@@ -21,6 +21,7 @@ def cmd_outlook(args) -> int:
     from pondsim.glossary import CAUTION
     from pondsim.results.crashes import crashes_by_cause, print_crash_causes
     from pondsim.results.files import save, write_csv
+    from pondsim.results.tables import lead_policy
     from pondsim.studies.bill import describe as describe_bill
     from pondsim.studies.bill import scenario_bill
     from pondsim.studies.outlook import (
@@ -55,7 +56,7 @@ def cmd_outlook(args) -> int:
         annual = annual_table(ds, count=scenario.pond.count, seed=seed,
                               crash_correlation=unc.farm_crash_correlation)
         bands = monthly_bands(ds)
-        best = str(annual["P50_t_ha_yr"].idxmax())
+        best = lead_policy(annual, ds)
         sens = None
         n_sobol = args.sobol_samples or unc.sobol_samples
         if unc.parameters and not args.no_sensitivity:

@@ -45,7 +45,7 @@ def run_study(scenario, out_dir, fingerprint: dict) -> dict:
     from pondsim.results.figstyle import context_of, source_of
     from pondsim.results.figures import compare_figures, drivers_figure, outlook_figures
     from pondsim.results.files import save, write_csv
-    from pondsim.results.tables import monthly_pond_water, policy_summary
+    from pondsim.results.tables import lead_policy, monthly_pond_water, policy_summary
     from pondsim.studies.bill import scenario_bill
     from pondsim.studies.compare import best_by_season, risk_calendar, season_table
     from pondsim.studies.outlook import annual_table, monthly_bands, run_outlook, sensitivity
@@ -57,7 +57,7 @@ def run_study(scenario, out_dir, fingerprint: dict) -> dict:
                            n_draws=opt["parameter_draws"], members=opt["crash_replicates"],
                            seed=opt["seed"], progress=scenario.run.progress)
     annual = annual_table(ds, scenario.pond.farm_area_m2)
-    lead = str(annual["P50_t_ha_yr"].idxmax())
+    lead = lead_policy(annual, ds)
     bands = monthly_bands(ds)
     summary = policy_summary(ds)
     crash = crash_model_of(scenario) or CrashModel()  # calendar only when switched off

@@ -109,8 +109,8 @@ def _headline(out: Path, scenario, manifest: dict, annual, summary, best) -> str
              ("P90_farm_t_yr", 1, "P90 annual biomass, farm [t AFDW yr⁻¹]"),
              ("mean_g_m2_d", 2, "mean areal productivity [g m⁻² d⁻¹]"),
              ("expected_crashes_yr", 2, "expected crashes per pond per year [yr⁻¹]")]
-    body = [_p(f"For the policy or plan with the highest P50, {lead!s} "
-               f"({_describe(scenario, lead)}):"),
+    body = [_p("For the lead policy or plan (the highest P50 among those that never "
+               f"wash the culture out), {lead!s} ({_describe(scenario, lead)}):"),
             '<div class="cards" id="headline-cards">']
     for col, digits, label in cards:
         body.append(f'<div class="card"><span class="value" data-col="{esc(col)}" '

@@ -214,7 +214,8 @@ def summary_section(out: Path, scenario, manifest: dict) -> str:
             "rule should run in each season, how often will cultures crash and what will "
             "the ponds consume?</p>",
             f'<p class="lede"><strong>Answer.</strong> Of the rules and plans compared, '
-            f"{esc(lead)} gives the highest P50; the best rule season by season is in the "
+            f"{esc(lead)} gives the highest P50 of those that never wash the culture "
+            "out; the best rule season by season is in the "
             f"plan below. Over {manifest['ensemble']['members']} members (weather years × "
             "parameter draws × crash draws):</p>"]
     body += _answer(annual, manifest, farm_ha)

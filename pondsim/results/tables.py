@@ -73,6 +73,17 @@ def _washout_columns(ds: xr.Dataset, policy) -> dict:
             "days_at_floor": float(ds["at_floor"].sel(policy=policy).sum("day").mean())}
 
 
+def lead_policy(annual: pd.DataFrame, ds: xr.Dataset, column: str = "P50_t_ha_yr") -> str:
+    """The policy or plan a business case leads with: the highest *column* (P50 annual
+    yield) among those whose culture washes out in no member (held at the viable floor,
+    see :func:`policy_summary`), the rule ``compare`` applies per season; when every one
+    washes out, the highest *column* of all (the washout is flagged where it is shown)."""
+    washed = pd.Series({p: _washout_columns(ds, p)["washed_out_pct"]
+                        for p in annual.index})
+    clean = annual[~(washed.reindex(annual.index) > 0)]
+    return str((clean if len(clean) else annual)[column].idxmax())
+
+
 def monthly_forcing_table(forcing: pd.DataFrame, par, water: pd.DataFrame,
                           pond, stress: pd.DataFrame | None = None) -> pd.DataFrame:
     """Monthly weather, light and pond water table (the ``pondsim weather`` output).

@@ -14,6 +14,7 @@ import xarray as xr
 from pondsim.errors import InputError
 from pondsim.glossary import G_M2_TO_T_HA
 from pondsim.operations.simulate import load_forcing, simulate
+from pondsim.results.tables import lead_policy
 from pondsim.studies.outlook_blocks import run_blocks, with_member_dim
 from pondsim.studies.quantiles import (
     CONFIDENCE,
@@ -309,9 +310,9 @@ def run_outlook(scenario, *, n_years: int, n_draws: int | None = None, members: 
     seed : int, optional
     progress : bool, optional
     converge : bool
-        Grow the ensemble in rounds until the lead policy's (highest P50) P90 is known
-        to within ``target_pct`` % of its P50 (95 % interval half-width), or until the
-        next round would pass ``max_members`` members per policy. Each round doubles the
+        Grow the ensemble in rounds until the lead policy's (highest P50 without
+        washout) P90 is known to within ``target_pct`` % of its P50 (95 % interval
+        half-width), or until the next round would pass ``max_members`` members per policy. Each round doubles the
         ensemble: new synthetic years (as many as so far) with their own draws, or, with
         real years, as many new draws per year as so far (new crash replicates when no
         parameter is uncertain). Every weather year has its
@@ -371,7 +372,7 @@ def run_outlook(scenario, *, n_years: int, n_draws: int | None = None, members: 
         if not converge:
             return ds, meta
         table = annual_table(ds, seed=seed)
-        lead = str(table["P50_t_ha_yr"].idxmax())
+        lead = lead_policy(table, ds)
         r = table.loc[lead]
         half = 0.5 * (r["P90_high_t_ha_yr"] - r["P90_low_t_ha_yr"])
         half_pct = 100 * half / r["P50_t_ha_yr"] if r["P50_t_ha_yr"] > 0 else np.inf
