@@ -313,7 +313,8 @@ def run_outlook(scenario, *, n_years: int, n_draws: int | None = None, members: 
         Grow the ensemble in rounds until the lead policy's (highest P50 without
         washout) P90 is known to within ``target_pct`` % of its P50 (95 % interval
         half-width), or until the next round would pass ``max_members`` members per
-        policy. Each round doubles the ensemble: new synthetic years (as many as so far) with their own draws, or, with
+        policy. Each round doubles the ensemble: new synthetic years (as many as so
+        far) with their own draws, or, with
         real years, as many new draws per year as so far (new crash replicates when no
         parameter is uncertain). Every weather year has its
         own ``n_draws`` parameter draws (nested), so distinct draws grow with the years.
