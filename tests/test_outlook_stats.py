@@ -232,6 +232,11 @@ def test_outlook_command_prints_intervals_and_convergence(tmp_path, capsys):
     bands = pd.read_csv(out / "monthly_bands.csv", comment="#")
     assert {"pct10_g_m2_d", "pct50_g_m2_d", "pct90_g_m2_d"} <= set(bands.columns)
     assert not any(c.startswith("p10") or c.startswith("p90") for c in bands.columns)
+    # The lead is the highest P50 among rules that never wash out; a higher one that does
+    # is named beside it (read back from the written tables).
+    top = annual["P50_t_ha_yr"].idxmax()
+    lead = text.split("lead policy '")[1].split("'")[0]
+    assert (top != lead) == (f"'{top}' has a higher P50 but washes" in text)
 
 
 @pytest.mark.slow

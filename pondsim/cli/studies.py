@@ -113,6 +113,10 @@ def cmd_outlook(args) -> int:
           f"{unc.farm_crash_correlation:g}).")
     status = _convergence_text(ds)
     print(f"lead policy '{best}'" + (f": {status}" if status else ""))
+    top = str(annual["P50_t_ha_yr"].idxmax())
+    if top != best:
+        print(f"  ('{top}' has a higher P50 but washes the culture out at its viable floor "
+              "in some members; the lead is the highest P50 of the rules that never do)")
     print("  per hectare: " + "; ".join(headline(annual, best)))
     print(f"  farm of {scenario.pond.count} pond(s): "
           + "; ".join(headline(annual, best, farm=True)))
