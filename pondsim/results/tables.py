@@ -63,14 +63,22 @@ def policy_summary(ds: xr.Dataset) -> pd.DataFrame:
     return pd.DataFrame(rows).set_index("policy")
 
 
+def washout_statistics(ds: xr.Dataset, policy) -> tuple[float, float]:
+    """Share of members washed out at least once in *ds*'s days [0-1] and mean days at
+    the viable floor [d] of one policy (NaN, NaN for results written before the floor
+    existed)."""
+    if "washed_out" not in ds:
+        return np.nan, np.nan
+    washed = ds["washed_out"].sel(policy=policy).max("day") > 0
+    return (float(washed.mean()),
+            float(ds["at_floor"].sel(policy=policy).sum("day").mean()))
+
+
 def _washout_columns(ds: xr.Dataset, policy) -> dict:
     """Share of members washed out at least once in the year [%] and mean days at the
-    viable floor [d per year] (NaN for results written before the floor existed)."""
-    if "washed_out" not in ds:
-        return {"washed_out_pct": np.nan, "days_at_floor": np.nan}
-    washed = ds["washed_out"].sel(policy=policy).max("day") > 0
-    return {"washed_out_pct": 100.0 * float(washed.mean()),
-            "days_at_floor": float(ds["at_floor"].sel(policy=policy).sum("day").mean())}
+    viable floor [d per year]."""
+    share, days = washout_statistics(ds, policy)
+    return {"washed_out_pct": 100.0 * share, "days_at_floor": days}
 
 
 def lead_policy(annual: pd.DataFrame, ds: xr.Dataset, column: str = "P50_t_ha_yr") -> str:
@@ -78,8 +86,7 @@ def lead_policy(annual: pd.DataFrame, ds: xr.Dataset, column: str = "P50_t_ha_yr
     yield) among those whose culture washes out in no member (held at the viable floor,
     see :func:`policy_summary`), the rule ``compare`` applies per season; when every one
     washes out, the highest *column* of all (the washout is flagged where it is shown)."""
-    washed = pd.Series({p: _washout_columns(ds, p)["washed_out_pct"]
-                        for p in annual.index})
+    washed = pd.Series({p: washout_statistics(ds, p)[0] for p in annual.index})
     clean = annual[~(washed.reindex(annual.index) > 0)]
     return str((clean if len(clean) else annual)[column].idxmax())
 

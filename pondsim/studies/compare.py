@@ -13,6 +13,7 @@ import xarray as xr
 from pondsim.glossary import G_M2_TO_T_HA
 from pondsim.operations.crash import CrashModel
 from pondsim.pond.capacity import k_drop_index, trailing_mean
+from pondsim.results.tables import washout_statistics
 
 
 def at_risk(ds: xr.Dataset) -> xr.DataArray:
@@ -77,11 +78,10 @@ def season_table(ds: xr.Dataset) -> pd.DataFrame:
 
 
 def _floor_columns(sub: xr.Dataset, pol) -> dict:
-    """Washout share and mean days at the floor of one policy in one season's days."""
-    if "washed_out" not in sub:  # results written before the floor existed
-        return {"p_washout": np.nan, "days_at_floor": np.nan}
-    return {"p_washout": float((sub["washed_out"].sel(policy=pol).max("day") > 0).mean()),
-            "days_at_floor": float(sub["at_floor"].sel(policy=pol).sum("day").mean())}
+    """Washout share [0-1] and mean days at the floor [d] of one policy in one season's
+    days."""
+    share, days = washout_statistics(sub, pol)
+    return {"p_washout": share, "days_at_floor": days}
 
 
 #: :func:`season_table` column -> (CSV column of :func:`comparison_table`, terminal
