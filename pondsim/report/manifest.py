@@ -9,6 +9,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from pondsim.errors import InputError
+from pondsim.results.files import file_sha256
 
 MANIFEST = "report_inputs.json"
 REPORT = "report.html"
@@ -50,14 +51,6 @@ class ReportRun:
 
 def _sha256(data: bytes) -> str:
     return hashlib.sha256(data).hexdigest()
-
-
-def _file_sha256(path: Path) -> str:
-    h = hashlib.sha256()
-    with open(path, "rb") as fh:
-        for block in iter(lambda: fh.read(1 << 20), b""):
-            h.update(block)
-    return h.hexdigest()
 
 
 def resolve_options(scenario, *, years=None, draws=None, members=None, seed=None) -> dict:
@@ -142,7 +135,7 @@ def reusable_manifest(out_dir, fingerprint: dict) -> dict | None:
         return None
     for name, digest in files.items():
         f = Path(out_dir) / name
-        if not f.is_file() or _file_sha256(f) != digest:
+        if not f.is_file() or file_sha256(f) != digest:
             return None
     return manifest
 

@@ -23,9 +23,8 @@ from pondsim.report.manifest import (
     MANIFEST_FORMAT,
     PRICED,
     _expected_files,
-    _file_sha256,
 )
-from pondsim.results.files import atomic_write
+from pondsim.results.files import atomic_write, file_sha256
 
 # ---------------------------------------------------------------------------------------
 # Running the study
@@ -116,7 +115,7 @@ def run_study(scenario, out_dir, fingerprint: dict) -> dict:
         "crash_basis": crash_basis_line(ds),
         "bill": {"policy": lead, "currency": bill.currency,
                  "notes": [str(n) for n in bill.notes]},
-        "files": {name: _file_sha256(out / name) for name in names},
+        "files": {name: file_sha256(out / name) for name in names},
     }
     text = json.dumps(manifest, indent=2, sort_keys=True) + "\n"
     atomic_write(out / MANIFEST, lambda tmp: Path(tmp).write_text(text, encoding="utf-8"))

@@ -266,7 +266,8 @@ def check_output_folder(folder) -> Path:
     return folder
 
 
-def _sha256(path: Path) -> str:
+def file_sha256(path: Path) -> str:
+    """SHA-256 of a file's bytes (hex), read in 1 MiB blocks."""
     h = hashlib.sha256()
     with open(path, "rb") as fh:
         for block in iter(lambda: fh.read(1 << 20), b""):
@@ -481,7 +482,7 @@ class OutputSet:
             "pondsim_version": __version__, "seed": self.seed,
             "scenario": None if self.scenario is None else str(self.scenario.resolve()),
             "scenario_sha256": (None if self.scenario is None or not self.scenario.is_file()
-                                else _sha256(self.scenario)),
+                                else file_sha256(self.scenario)),
             "notes": self.notes, "files": {},
         }
         names = {p.relative_to(self.dir).as_posix(): 0 for p in self._files()}
@@ -489,7 +490,7 @@ class OutputSet:
             _readme({**manifest, "files": names}), encoding="utf-8"))
         for path in self._files():
             manifest["files"][path.relative_to(self.dir).as_posix()] = {
-                "bytes": path.stat().st_size, "sha256": _sha256(path)}
+                "bytes": path.stat().st_size, "sha256": file_sha256(path)}
         atomic_write(self.dir / MANIFEST_NAME, lambda tmp: Path(tmp).write_text(
             json.dumps(manifest, indent=1), encoding="utf-8"))
         self.manifest = manifest
@@ -519,6 +520,6 @@ def verify_output_set(folder) -> list[str]:
         path = folder / name
         if not path.is_file():
             problems.append(f"{name}: missing")
-        elif path.stat().st_size != info["bytes"] or _sha256(path) != info["sha256"]:
+        elif path.stat().st_size != info["bytes"] or file_sha256(path) != info["sha256"]:
             problems.append(f"{name}: not the file of run {manifest['run_id']}")
     return problems
